@@ -1,0 +1,76 @@
+/*
+** cli/common.c -- what the subcommands share: diagnostics on stderr,
+** a progress line, usage errors.
+*/
+#include <stdarg.h>
+#include <string.h>
+#include <time.h>
+#include <unistd.h>
+
+#include "cli.h"
+
+size_t st_cli_print_diags(const st_diags *d)
+{
+    st_buf b;
+    st_buf_init(&b, 0);
+    for (size_t i = 0; i < d->count; i++) {
+        st_buf_clear(&b);
+        if (!d->items[i].file && st_buf_puts(&b, "stocktake: ") != ST_OK)
+            break;
+        if (st_diag_render(&d->items[i], &b) != ST_OK)
+            break;
+        fputs(b.data, stderr);
+    }
+    if (d->dropped)
+        fprintf(stderr, "stocktake: %zu more diagnostics not shown\n", d->dropped);
+    st_buf_free(&b);
+    return d->errors;
+}
+
+int st_cli_usage_error(const char *cmd, const char *fmt, ...)
+{
+    va_list ap;
+    fprintf(stderr, "stocktake %s: ", cmd);
+    va_start(ap, fmt);
+    vfprintf(stderr, fmt, ap);
+    va_end(ap);
+    fprintf(stderr, "\n(see 'stocktake %s --help')\n", cmd);
+    return ST_EXIT_ERROR;
+}
+
+static double now_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + ts.tv_nsec / 1e9;
+}
+
+void st_progress_start(st_progress *p, const char *label, int quiet)
+{
+    p->active = !quiet && isatty(STDERR_FILENO);
+    p->label = label;
+    p->last = 0.0;
+}
+
+void st_progress_update(st_progress *p, long long done, long long total,
+                        long long features)
+{
+    if (!p->active)
+        return;
+    double t = now_seconds();
+    if (t - p->last < 0.2)
+        return;
+    p->last = t;
+    if (total > 0)
+        fprintf(stderr, "\r%s: %5.1f%%  %lld features", p->label,
+                100.0 * (double)done / (double)total, features);
+    else
+        fprintf(stderr, "\r%s: %lld features", p->label, features);
+    fflush(stderr);
+}
+
+void st_progress_end(st_progress *p)
+{
+    if (p->active)
+        fprintf(stderr, "\r\033[K");
+}

@@ -1,0 +1,74 @@
+/*
+** core/str.c -- small string helpers: suffix tests and UTF-8 validation.
+*/
+#include <ctype.h>
+#include <string.h>
+
+#include "stocktake/core.h"
+
+int st_str_ends_with_ci(const char *s, const char *suffix)
+{
+    size_t n = strlen(s), m = strlen(suffix);
+    if (m > n)
+        return 0;
+    for (size_t i = 0; i < m; i++)
+        if (tolower((unsigned char)s[n - m + i]) != tolower((unsigned char)suffix[i]))
+            return 0;
+    return 1;
+}
+
+/* Length of the valid UTF-8 sequence at s (at most n bytes), 0 if invalid.
+** Rejects overlong forms, surrogates and code points above U+10FFFF. */
+static size_t utf8_seq(const unsigned char *s, size_t n)
+{
+    unsigned c = s[0];
+    if (c < 0x80)
+        return 1;
+    size_t len;
+    unsigned min;
+    if (c >= 0xC2 && c <= 0xDF) { len = 2; min = 0x80; }
+    else if (c >= 0xE0 && c <= 0xEF) { len = 3; min = 0x800; }
+    else if (c >= 0xF0 && c <= 0xF4) { len = 4; min = 0x10000; }
+    else return 0;
+    if (len > n)
+        return 0;
+    unsigned cp = c & (0x7F >> len);
+    for (size_t i = 1; i < len; i++) {
+        if ((s[i] & 0xC0) != 0x80)
+            return 0;
+        cp = (cp << 6) | (s[i] & 0x3F);
+    }
+    if (cp < min || cp > 0x10FFFF || (cp >= 0xD800 && cp <= 0xDFFF))
+        return 0;
+    return len;
+}
+
+size_t st_utf8_valid_prefix(const char *s, size_t n)
+{
+    size_t i = 0;
+    while (i < n) {
+        size_t k = utf8_seq((const unsigned char *)s + i, n - i);
+        if (!k)
+            break;
+        i += k;
+    }
+    return i;
+}
+
+char *st_utf8_sanitize(const char *s, size_t n)
+{
+    st_buf b;
+    st_buf_init(&b, 0);
+    size_t i = 0;
+    while (i < n) {
+        size_t k = utf8_seq((const unsigned char *)s + i, n - i);
+        st_status rc = k ? st_buf_append(&b, s + i, k)
+                         : st_buf_append(&b, "\xEF\xBF\xBD", 3);
+        if (rc != ST_OK) {
+            st_buf_free(&b);
+            return NULL;
+        }
+        i += k ? k : 1;
+    }
+    return st_buf_take(&b);
+}
