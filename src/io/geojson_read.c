@@ -403,7 +403,8 @@ static int property_value(gj_reader *g, st_field_type type, const char *s, size_
     return rc == ST_OK ? 1 : cb_status(g, rc, "");
 }
 
-/* Integer or real by the literal; integers beyond 64 bits count as real. */
+/* Integer or real by the literal; an integer of more than 18 digits (it
+** may not fit in 64 bits) counts as real. */
 static st_field_type number_type(const char *s, size_t n)
 {
     size_t digits = 0;

@@ -4,7 +4,10 @@
 **
 ** Input:   one layer of features in lon/lat WGS 84, written as they come:
 **          nothing of the layer is buffered beyond the feature at hand.
-** Output:  RFC 7946 text: no "crs" member (Appendix B.1); exterior rings
+** Output:  .geojson/.json: one FeatureCollection, a feature a line.
+**          .geojsonl/.ndjson: one Feature a line; .geojsons: the same with
+**          an RS (0x1E) before each, as RFC 8142 text sequences have it.
+**          RFC 7946 text: no "crs" member (Appendix B.1); exterior rings
 **          counter-clockwise and holes clockwise (section 3.1.6), on a
 **          copy of each geometry; coordinates as the shortest of %.15g,
 **          %.16g and %.17g that reads back to the same double, so a round

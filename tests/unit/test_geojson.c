@@ -540,6 +540,25 @@ static void test_read_crs_member(void **state)
     st_diags_free(&d);
 }
 
+static void test_read_bom_and_repeated_crs(void **state)
+{
+    (void)state;
+    static const char text[] =
+        "\xEF\xBB\xBF{\"type\":\"FeatureCollection\",\"features\":[{\"type\":\"Feature\","
+        "\"properties\":{},\"geometry\":null}],"
+        "\"crs\":{\"type\":\"name\",\"properties\":{\"name\":\"urn:ogc:def:crs:OGC:1.3:CRS84\"}}}";
+    write_file(tmp_path("bom.geojson"), text, sizeof text - 1);
+    st_diags d;
+    st_diags_init(&d);
+    layer l;
+    /* A late "crs" naming the CRS already in use is no error. */
+    assert_int_equal(read_layer(tmp_path("bom.geojson"), NULL, &d, &l), ST_OK);
+    assert_int_equal(l.n, 1);
+    assert_string_equal(l.crs, "OGC:CRS84");
+    layer_free(&l);
+    st_diags_free(&d);
+}
+
 /* Every allocation of a small read fails in turn: NOMEM, nothing leaked
 ** (leaks are caught by the sanitizer build and valgrind). */
 static void test_read_allocation_failures(void **state)
@@ -712,6 +731,64 @@ static void check_sample(const char *path)
     assert_int_equal(l.f[2]->geom.type, ST_GEOM_NULL);
     layer_free(&l);
     st_diags_free(&d);
+}
+
+/* Like write_sample, without assertions: the first failing status. */
+static st_status try_write(const char *path, const st_fields *fl, st_diags *d)
+{
+    st_writer *w = NULL;
+    const char *v0[] = {special, "7", "12.25", "T", "[1, {\"a\": 2}]", "x\xFF"};
+    st_feature *f = st_feature_new();
+    st_status rc = f ? ST_OK : ST_ERR_NOMEM;
+    for (uint32_t i = 0; rc == ST_OK && i < 6; i++)
+        rc = st_feature_set_value(f, i, v0[i], strlen(v0[i]));
+    if (rc == ST_OK && !(f->source_id = st_strdup("9")))
+        rc = ST_ERR_NOMEM;
+    if (rc == ST_OK)
+        rc = st_geom_begin_part(&f->geom);
+    for (int i = 0; rc == ST_OK && i < 4; i++)
+        rc = st_geom_add_xy(&f->geom, i == 1 || i == 2, i >= 2);
+    if (rc == ST_OK) {
+        f->geom.type = ST_GEOM_POLYGON;
+        rc = st_writer_open(path, d, &w);
+    }
+    if (rc == ST_OK)
+        rc = st_writer_begin_layer(w, "x", fl, ST_GEOM_POLYGON);
+    for (int i = 0; rc == ST_OK && i < 3; i++)
+        rc = st_writer_write(w, f);
+    if (rc == ST_OK)
+        rc = st_writer_commit(w);
+    st_writer_close(w);
+    st_feature_free(f);
+    return rc;
+}
+
+static void test_write_allocation_failures(void **state)
+{
+    (void)state;
+    const char *path = tmp_path("alloc.geojson");
+    st_fields fl;
+    fields_for_writing(&fl);
+    long n;
+    for (n = 1; n < 10000; n++) {
+        st_diags d;
+        st_diags_init(&d);
+        st_alloc_fail_after(n);
+        st_status rc = try_write(path, &fl, &d);
+        long used = st_alloc_count();
+        st_alloc_fail_after(0);
+        st_diags_free(&d);
+        if (rc == ST_OK && used < n)
+            break;
+        if (rc != ST_ERR_NOMEM)
+            fail_msg("allocation %ld failed, status %s", n, st_status_name(rc));
+        if (file_exists(path))
+            fail_msg("allocation %ld failed: %s left behind", n, path);
+    }
+    assert_true(n > 10);
+    assert_true(file_exists(path));
+    remove(path);
+    st_fields_free(&fl);
 }
 
 static void test_write_geojson_roundtrip(void **state)
@@ -915,7 +992,9 @@ int main(void)
         cmocka_unit_test(test_read_long_string_is_limit),
         cmocka_unit_test(test_read_invalid_utf8_replaced),
         cmocka_unit_test(test_read_crs_member),
+        cmocka_unit_test(test_read_bom_and_repeated_crs),
         cmocka_unit_test(test_read_allocation_failures),
+        cmocka_unit_test(test_write_allocation_failures),
         cmocka_unit_test(test_write_geojson_roundtrip),
         cmocka_unit_test(test_write_geojsonl_one_per_line),
         cmocka_unit_test(test_write_without_commit_leaves_nothing),
