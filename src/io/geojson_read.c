@@ -21,13 +21,15 @@
 **          type (later stages reject what is not polygonal); in a
 **          GeometryCollection only the polygonal members are kept (as
 **          parts). Empty rings and parts are dropped; unclosed rings are
-**          kept as they are. "id" becomes the feature's source_id.
+**          kept as they are; a third number sets has_z (Z is dropped).
+**          "id" becomes the feature's source_id.
 ** Errors:  malformed JSON, a wrong structure (no "features", a member of
 **          "features" that is not a Feature, coordinates that are not
 **          numbers, a position with fewer than 2 numbers) are ST_ERR_FORMAT;
 **          each diagnostic gives the line, the byte offset and the feature
 **          index. Features completed before an error are still returned;
-**          the error comes with the next call. A "crs" member that comes
+**          the error comes with the next call. Open reads ahead to the
+**          first feature (see below), so an error before it fails open. A "crs" member that comes
 **          after the first feature is an error unless it names the CRS
 **          already in use: the CRS is fixed when the reader opens.
 ** Limits (ST_ERR_LIMIT, with the same location):
@@ -38,6 +40,7 @@
 **          properties of a feature  64 MiB of text in total
 **          distinct property names  10000 per layer
 **          coordinates of a feature 16,777,216 positions (256 MiB of doubles)
+**          one coordinate's text    127 characters
 ** Memory:  YAJL's own buffers come from the C allocator, not st_malloc:
 **          YAJL does not check its internal allocations, so an injected
 **          failure there would crash instead of testing our error paths.

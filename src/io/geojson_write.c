@@ -28,7 +28,8 @@
 **          generic writer renames the temporary file on commit and removes
 **          it otherwise.
 ** Memory:  YAJL's generator uses the C allocator (see geojson_read.c: YAJL
-**          does not check its own allocations).
+**          does not check its own allocations). Coordinates are printed
+**          with snprintf/strtod in the "C" numeric locale.
 */
 #include <errno.h>
 #include <math.h>
