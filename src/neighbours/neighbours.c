@@ -213,21 +213,24 @@ static int hash_key_cmp(const void *x, const void *y)
     return a->pos < b->pos ? -1 : a->pos > b->pos;
 }
 
-/* A point inside f for its finding; NAN, NAN when GEOS cannot say. */
-static void inside_point(st_geos *gx, const st_feature *f, double *x, double *y)
+/* A point inside f for its finding; NAN, NAN when GEOS cannot say.
+** ST_ERR_NOMEM when building the geometry ran out of memory. */
+static st_status inside_point(st_geos *gx, const st_feature *f, double *x, double *y)
 {
     *x = *y = NAN;
     char err[128] = "";
     GEOSGeometry *g = st_geom_to_geos(gx, &f->geom, err, sizeof err);
-    GEOSGeometry *p = g ? GEOSPointOnSurface_r(gx->h, g) : NULL;
+    if (!g)   /* geomx.c says "out of memory" when its own allocation failed */
+        return strcmp(err, "out of memory") == 0 ? ST_ERR_NOMEM : ST_OK;
+    GEOSGeometry *p = GEOSPointOnSurface_r(gx->h, g);
     if (p && GEOSisEmpty_r(gx->h, p) == 0) {
         GEOSGeomGetX_r(gx->h, p, x);
         GEOSGeomGetY_r(gx->h, p, y);
     }
     if (p)
         GEOSGeom_destroy_r(gx->h, p);
-    if (g)
-        GEOSGeom_destroy_r(gx->h, g);
+    GEOSGeom_destroy_r(gx->h, g);
+    return ST_OK;
 }
 
 /* Set aside all members of class 'tag' in run m[0..k) but the keeper. */
@@ -242,24 +245,22 @@ static st_status settle_class(st_neighbours *nb, hash_key *m, size_t k, uint64_t
             best = j;
     const st_feature *keeper = item(nb, m[best].pos);
     double x, y;
-    inside_point(nb->gx, keeper, &x, &y);
-    for (size_t j = 0; j < k; j++) {
+    st_status rc = inside_point(nb->gx, keeper, &x, &y);
+    for (size_t j = 0; rc == ST_OK && j < k; j++) {
         if (m[j].hash != tag || j == best)
             continue;
         st_feature *dup = item(nb, m[j].pos);
         char who[256], why[128];
         st_nb_describe(nb, dup, who, sizeof who);
         st_nb_why_kept(keeper, dup, why, sizeof why);
-        st_status rc = st_nb_set_aside(nb, dup, keeper, "exact duplicate", "");
+        rc = st_nb_set_aside(nb, dup, keeper, "exact duplicate", "");
         if (rc == ST_OK)
             rc = st_findings_add(findings, keeper->bid, ST_CODE_DUP_EXACT,
                                  nb->cfg.exact_severity, x, y,
                                  "exact duplicate %s set aside; this one was kept because %s",
                                  who, why);
-        if (rc != ST_OK)
-            return rc;
     }
-    return ST_OK;
+    return rc;
 }
 
 /*
