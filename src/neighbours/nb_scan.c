@@ -240,6 +240,43 @@ static st_status compare_pair(scan *s, uint32_t a, const GEOSGeometry *ga,
     return rc;
 }
 
+/* ---- the cheap test before GEOS ------------------------------------------ */
+
+/* Planar area of g in square degrees: shells less holes (valid polygons). */
+static double planar_area(const st_geom *g)
+{
+    double a = 0.0;
+    for (uint32_t p = 0; p < g->nparts; p++)
+        for (uint32_t r = g->part_ring[p]; r < g->part_ring[p + 1]; r++) {
+            double ring = fabs(st_geom_ring_signed_area(g, r));
+            a += r == g->part_ring[p] ? ring : -ring;
+        }
+    return a;
+}
+
+/*
+** 1 when the pair cannot matter, judged from envelopes alone: the
+** intersection is no larger than the overlap of the two envelopes, and
+** IoU <= share, so when that overlap is below min(overlap_share, near_iou)
+** of the smaller footprint neither test can pass. This skips the GEOS work
+** for most neighbours (terraced houses' envelopes meet on a line only).
+** The margin keeps the test conservative against the few ulps by which
+** this shoelace and GEOS's area may differ.
+*/
+static int cannot_matter(const scan *s, const double ba[4], double area_a, uint32_t b)
+{
+    const st_geom *g = &item(s->nb, b)->geom;
+    double bb[4];
+    st_geom_bbox(g, bb);
+    double w = fmin(ba[2], bb[2]) - fmax(ba[0], bb[0]);
+    double h = fmin(ba[3], bb[3]) - fmax(ba[1], bb[1]);
+    double boxes = w > 0.0 && h > 0.0 ? w * h : 0.0;
+    double smaller = fmin(area_a, planar_area(g));
+    const st_neighbours_config *cfg = &s->nb->cfg;
+    double need = fmin(cfg->overlap_share, cfg->near_iou) * smaller;
+    return boxes < need * (1.0 - 1e-9);
+}
+
 /* ---- one footprint ---------------------------------------------------------- */
 
 static st_status query(scan *s, uint32_t a)
@@ -288,8 +325,11 @@ static st_status scan_one(scan *s, uint32_t a)
     const GEOSPreparedGeometry *prep = NULL;
     if (!GEOSArea_r(h, ga, &area_a) || !(prep = GEOSPrepare_r(h, ga)))
         rc = skipped(s, item(s->nb, a), ST_ERR_GEOS, "area or preparation failed");
+    double ba[4];
+    st_geom_bbox(&item(s->nb, a)->geom, ba);
     for (size_t i = 0; prep && rc == ST_OK && i < s->ncand; i++)
-        rc = compare_pair(s, a, ga, prep, area_a, s->cand[i]);
+        if (!cannot_matter(s, ba, area_a, s->cand[i]))
+            rc = compare_pair(s, a, ga, prep, area_a, s->cand[i]);
     if (prep)
         GEOSPreparedGeom_destroy_r(h, prep);
     GEOSGeom_destroy_r(h, ga);
