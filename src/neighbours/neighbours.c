@@ -112,7 +112,8 @@ void st_nb_why_kept(const st_feature *keeper, const st_feature *dup, char *buf, 
         snprintf(buf, n, "it has more filled attributes (%u against %u)", (unsigned)fk,
                  (unsigned)fd);
     else
-        snprintf(buf, n, "it was read first (both have %u filled attributes)", (unsigned)fk);
+        snprintf(buf, n, "it was read first (both have %u filled attribute%s)", (unsigned)fk,
+                 fk == 1 ? "" : "s");
 }
 
 st_status st_nb_set_aside(const st_neighbours *nb, st_feature *dup, const st_feature *keeper,
