@@ -83,7 +83,7 @@ static st_loc where(const scan *s, const st_feature *f)
     const char *layer = NULL;
     if (s->nb->in.layer_names && f->layer < s->nb->in.nlayers)
         layer = s->nb->in.layer_names[f->layer];
-    return (st_loc)ST_LOC_FEATURE(layer, (long long)f->index);
+    return ST_LOC_FEATURE(layer, (long long)f->index);
 }
 
 /* Warn that a footprint or pair was skipped; the scan goes on. */

@@ -453,6 +453,32 @@ static void test_containment(void **state)
     fx_free(&x);
 }
 
+/* The m² in a finding is the geodesic area of the intersection. Published
+** value: the 1° x 1° cell lat 0-1, lon 0-1 with geodesic edges has
+** 12 308 778 361.469452 m² on WGS 84 (REFERENCES.md section 2, case 9,
+** PUB-R: geographiclib-rs PolygonArea documentation). */
+static void test_intersection_area_is_geodesic(void **state)
+{
+    (void)state;
+    fx x;
+    fx_init(&x);
+    st_feature *outer = add_feature(&x, 0, 0, 0);
+    static const double big[] = {0, 0, 2, 0, 2, 2, 0, 2, 0, 0};
+    static const double cell[] = {0, 0, 1, 0, 1, 1, 0, 1, 0, 0};
+    for (int k = 0; k < 5; k++)
+        assert_int_equal(st_geom_add_xy(&outer->geom, big[2 * k], big[2 * k + 1]), ST_OK);
+    st_feature *inner = add_feature(&x, 0, 1, 0);
+    for (int k = 0; k < 5; k++)
+        assert_int_equal(st_geom_add_xy(&inner->geom, cell[2 * k], cell[2 * k + 1]), ST_OK);
+    assert_int_equal(fx_run(&x), ST_OK);
+    const char *m = message_of(&x, ST_CODE_OVERLAP_CONTAINED, inner->bid);
+    double m2 = 0;
+    assert_int_equal(sscanf(strstr(m, "% of this footprint ("), "%% of this footprint (%lf", &m2),
+                     1);
+    assert_true(fabs(m2 - 12308778361.469452) < 0.06);   /* printed to 0.1 m² */
+    fx_free(&x);
+}
+
 static void test_rejected_are_ignored(void **state)
 {
     (void)state;
@@ -923,7 +949,8 @@ static void check_against_shapely(const st_neighbours_config *cfg, size_t *npair
 static int have_real_data(void)
 {
     return access(REAL_LAYER, R_OK) == 0 && access(REF_SCRIPT, R_OK) == 0 &&
-           access("/usr/bin/python3", X_OK) == 0;
+           access("/usr/bin/python3", X_OK) == 0 &&
+           system("/usr/bin/python3 -c 'import geopandas, shapely, pyproj' 2>/dev/null") == 0;
 }
 
 static void test_real_data_matches_shapely(void **state)
@@ -957,6 +984,7 @@ int main(void)
         cmocka_unit_test(test_terraced_houses_share_walls),
         cmocka_unit_test(test_partial_overlap_flagged_on_both),
         cmocka_unit_test(test_containment),
+        cmocka_unit_test(test_intersection_area_is_geodesic),
         cmocka_unit_test(test_rejected_are_ignored),
         cmocka_unit_test(test_determinism_under_shuffles),
         cmocka_unit_test(test_split_scans_match_single_run),
