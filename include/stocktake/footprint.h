@@ -228,8 +228,9 @@ const st_geom *st_footprint_source_geom(const st_feature *f);
 ** Geodesic area (m^2) and perimeter (m) of g (borrowed) on WGS 84, with
 ** geod_polygonarea's algorithm ring by ring: each polygon counts
 ** |shell| - sum |holes|, whatever the rings' orientation; the perimeter is
-** the length of every ring. Works across the antimeridian and near the
-** poles. A non-polygonal, null or empty g gives 0 and 0; a ring with a
+** the length of the shells (the outline; holes add none -- the same
+** convention as pyproj's Geod.geometry_area_perimeter). Works across the
+** antimeridian and near the poles. A non-polygonal, null or empty g gives 0 and 0; a ring with a
 ** non-finite coordinate gives NAN.
 */
 void st_footprint_measure(const st_footprint_checker *ck, const st_geom *g,

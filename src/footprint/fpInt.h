@@ -59,6 +59,10 @@ void fp_ring_measure(const st_footprint_checker *ck, const st_geom *g, uint32_t 
 /* Geodesic area of part p: |shell| - sum |holes|. */
 double fp_part_area(const st_footprint_checker *ck, const st_geom *g, uint32_t p);
 
+/* 1 when st_geom_to_geos failed for want of memory (its only way to say
+** so is its message), so the caller returns ST_ERR_NOMEM, not a finding. */
+int fp_out_of_memory(const char *geos_err);
+
 /* What the repair did, for the findings. */
 typedef struct fp_repair_info {
     uint32_t parts_dropped;      /* parts below min-area removed */

@@ -54,9 +54,13 @@ void st_footprint_measure(const st_footprint_checker *ck, const st_geom *g,
     if (is_polygonal(g)) {
         for (uint32_t p = 0; p < g->nparts; p++)
             area += fp_part_area(ck, g, p);
-        for (uint32_t r = 0; r < g->nrings; r++) {
+        /* The outline only -- the shells' length, as pyproj's
+        ** geometry_area_perimeter reports it (holes add no perimeter). */
+        for (uint32_t p = 0; p < g->nparts; p++) {
             double a, len;
-            fp_ring_measure(ck, g, r, &a, &len);
+            if (g->part_ring[p] == g->part_ring[p + 1])
+                continue;
+            fp_ring_measure(ck, g, g->part_ring[p], &a, &len);
             perimeter += len;
         }
     }

@@ -85,21 +85,29 @@ static st_status keep_large_parts(const st_footprint_checker *ck, const st_geom 
     return ST_OK;
 }
 
-/* GEOS twin of g if it is valid, else NULL with info->failure set. */
-static GEOSGeometry *valid_twin(st_geos *gx, const st_geom *g, fp_repair_info *info)
+int fp_out_of_memory(const char *geos_err)
+{
+    return strcmp(geos_err, "out of memory") == 0;   /* core/geomx.c's words */
+}
+
+/* *twin = GEOS twin of g if it is valid, else NULL with info->failure set. */
+static st_status valid_twin(st_geos *gx, const st_geom *g, GEOSGeometry **twin,
+                            fp_repair_info *info)
 {
     char err[256] = "";
-    GEOSGeometry *twin = st_geom_to_geos(gx, g, err, sizeof err);
-    if (!twin) {
+    *twin = st_geom_to_geos(gx, g, err, sizeof err);
+    if (!*twin) {
+        if (fp_out_of_memory(err))
+            return ST_ERR_NOMEM;
         snprintf(info->failure, sizeof info->failure, "repaired geometry unusable: %s", err);
-        return NULL;
+        return ST_OK;
     }
-    if (GEOSisValid_r(gx->h, twin) != 1) {
+    if (GEOSisValid_r(gx->h, *twin) != 1) {
         set_failure(info, "GEOS MakeValid gave an invalid geometry", NULL);
-        GEOSGeom_destroy_r(gx->h, twin);
-        return NULL;
+        GEOSGeom_destroy_r(gx->h, *twin);
+        *twin = NULL;
     }
-    return twin;
+    return ST_OK;
 }
 
 static int is_polygonal(st_geom_type t)
@@ -139,7 +147,7 @@ st_status fp_repair(st_footprint_checker *ck, const st_footprint_config *cfg,
         set_failure(info, "nothing polygonal is left after MakeValid", NULL);
     else if (rc == ST_OK) {
         out->type = out->nparts == 1 ? ST_GEOM_POLYGON : ST_GEOM_MULTIPOLYGON;
-        *out_gx = valid_twin(ck->gx, out, info);
+        rc = valid_twin(ck->gx, out, out_gx, info);
     }
 done:
     if (rc == ST_ERR_GEOS) {
