@@ -382,9 +382,9 @@ static st_status repair(fp_run *r, const GEOSGeometry *in)
     st_geom_clear(&r->work);
     r->work = fixed;
     r->final_gx = twin;
-    char what[96];
-    snprintf(what, sizeof what, "GEOS MakeValid (%s method)",
-             st_repair_method_name(r->cfg->method));
+    char what[224];
+    snprintf(what, sizeof what, "GEOS MakeValid (%s method%s%s)",
+             st_repair_method_name(r->cfg->method), info.note[0] ? "; " : "", info.note);
     note_repair(r, what);
     if (info.parts_dropped) {
         double x, y;

@@ -67,6 +67,7 @@ int fp_out_of_memory(const char *geos_err);
 typedef struct fp_repair_info {
     uint32_t parts_dropped;      /* parts below min-area removed */
     double dropped_area;         /* their total area, m2 */
+    char note[160];              /* a second step GEOS needed, "" if none */
     char failure[256];           /* why there is no result, "" on success */
 } fp_repair_info;
 

@@ -9,10 +9,12 @@
 ** Errors:  ST_ERR_NOMEM; GEOS exceptions become the failure text (the
 **          caller rejects the feature), never a run error.
 ** Method:  GEOS MakeValid with the configured method (structure by
-**          default; docs/footprint.md says why), collapsed parts dropped,
-**          then only polygonal parts kept, parts below min-area dropped
-**          except the largest, repeated vertices removed, and the result
-**          checked with GEOSisValid -- a repair is never trusted unseen.
+**          default; docs/footprint.md says why), collapsed parts dropped;
+**          should GEOS's own result be invalid, a union of it, else the
+**          other method; then only polygonal parts kept, parts below
+**          min-area dropped except the largest, repeated vertices removed,
+**          and the result checked with GEOSisValid -- a repair is never
+**          trusted unseen.
 */
 #include <math.h>
 #include <stdio.h>
@@ -26,14 +28,14 @@ static void set_failure(fp_repair_info *info, const char *what, const st_geos *g
              gx && gx->last_error[0] ? ": " : "", gx ? gx->last_error : "");
 }
 
-/* GEOS MakeValid with the configured method; NULL on a GEOS exception. */
-static GEOSGeometry *make_valid(st_geos *gx, const st_footprint_config *cfg,
-                                const GEOSGeometry *in)
+/* GEOS MakeValid with 'method'; NULL on a GEOS exception. */
+static GEOSGeometry *make_valid_with(st_geos *gx, st_repair_method method,
+                                     const GEOSGeometry *in)
 {
     GEOSMakeValidParams *params = GEOSMakeValidParams_create_r(gx->h);
     if (!params)
         return NULL;
-    GEOSMakeValidParams_setMethod_r(gx->h, params, cfg->method == ST_REPAIR_LINEWORK
+    GEOSMakeValidParams_setMethod_r(gx->h, params, method == ST_REPAIR_LINEWORK
                                                        ? GEOS_MAKE_VALID_LINEWORK
                                                        : GEOS_MAKE_VALID_STRUCTURE);
     /* Collapsed parts (spikes, cut lines, zero-area rings) are not building. */
@@ -41,6 +43,44 @@ static GEOSGeometry *make_valid(st_geos *gx, const st_footprint_config *cfg,
     GEOSGeometry *out = GEOSMakeValidWithParams_r(gx->h, in, params);
     GEOSMakeValidParams_destroy_r(gx->h, params);
     return out;
+}
+
+/*
+** MakeValid with the configured method, then second steps when its result
+** is itself invalid. GEOS 3.11.1's structure method can return parts that
+** share an edge: one real footprint does (north_macedonia, see
+** tests/unit/test_footprint_real.c). A union merges such parts without
+** changing the area covered; if that does not help, the other method is
+** tried. Whatever comes out is still checked by the caller.
+*/
+static GEOSGeometry *make_valid(st_geos *gx, const st_footprint_config *cfg,
+                                const GEOSGeometry *in, fp_repair_info *info)
+{
+    GEOSGeometry *mv = make_valid_with(gx, cfg->method, in);
+    if (!mv || GEOSisValid_r(gx->h, mv) == 1)
+        return mv;
+    GEOSGeometry *merged = GEOSUnaryUnion_r(gx->h, mv);
+    if (merged && GEOSisValid_r(gx->h, merged) == 1) {
+        GEOSGeom_destroy_r(gx->h, mv);
+        snprintf(info->note, sizeof info->note,
+                 "MakeValid's parts overlapped or shared an edge; merged them with a union");
+        return merged;
+    }
+    if (merged)
+        GEOSGeom_destroy_r(gx->h, merged);
+    st_repair_method other = cfg->method == ST_REPAIR_LINEWORK ? ST_REPAIR_STRUCTURE
+                                                               : ST_REPAIR_LINEWORK;
+    GEOSGeometry *second = make_valid_with(gx, other, in);
+    if (second && GEOSisValid_r(gx->h, second) == 1) {
+        GEOSGeom_destroy_r(gx->h, mv);
+        snprintf(info->note, sizeof info->note,
+                 "MakeValid's result was invalid; used the %s method",
+                 st_repair_method_name(other));
+        return second;
+    }
+    if (second)
+        GEOSGeom_destroy_r(gx->h, second);
+    return mv;   /* the caller's validity check rejects it */
 }
 
 static st_status append_part(const st_geom *src, uint32_t p, st_geom *dst)
@@ -123,7 +163,7 @@ st_status fp_repair(st_footprint_checker *ck, const st_footprint_config *cfg,
     st_geom_clear(out);
     *out_gx = NULL;
     st_geos_clear_error(ck->gx);
-    GEOSGeometry *mv = make_valid(ck->gx, cfg, in);
+    GEOSGeometry *mv = make_valid(ck->gx, cfg, in, info);
     if (!mv) {
         set_failure(info, "GEOS MakeValid failed", ck->gx);
         return ST_OK;
