@@ -33,7 +33,8 @@ typedef enum {
     ST_GEOM_MULTILINESTRING,
     ST_GEOM_MULTIPOLYGON,
     ST_GEOM_COLLECTION,  /* only its polygonal members are kept (as parts) */
-    ST_GEOM_OTHER        /* curves, surfaces, TINs...: nothing is kept */
+    ST_GEOM_OTHER        /* curves, surfaces, TINs...: nothing is kept; as a
+                            layer's declared type: any geometry ("GEOMETRY") */
 } st_geom_type;
 
 /* Upper-case OGC name ("POLYGON"), "NULL" for ST_GEOM_NULL. */
