@@ -446,6 +446,12 @@ static void print_field(const layer_stats *ls, const st_field *f, const field_st
     ranked top[INSPECT_TOP];
     int n;
     top_values(fs, top, &n);
+    if (n == INSPECT_TOP && top[0].count == 1) {
+        /* An identifier-like field: fifteen "1" lines would say nothing
+        ** (the JSON output still lists them). */
+        printf("    %10s  (every value occurs once)\n", "");
+        return;
+    }
     for (int i = 0; i < n; i++) {
         printf("    %10llu  ", (unsigned long long)top[i].count);
         print_value(top[i].value, top[i].len);
