@@ -107,6 +107,30 @@ grep -q "usage: stocktake inspect" "$TMP/stdout" || fail "--help"
 
 [ "$(sha "$T")" = "$before" ] || fail "the input was modified"
 
+# ---- the distinct-value cap: 200,005 different ids ------------------------------------
+$PY - "$TMP/many.geojsonl" <<'EOF'
+import json, sys
+with open(sys.argv[1], "w") as fp:
+    for i in range(200005):
+        fp.write(json.dumps({"type": "Feature", "properties": {"id": f"b{i}", "kind": "ABC"[i % 3]},
+                             "geometry": {"type": "Point", "coordinates": [3.2 + i * 1e-7, 51.18]}}) + "\n")
+EOF
+if has_reader "$TMP/many.geojsonl"; then
+    expect_rc 0 "$STOCKTAKE" inspect --json -q "$TMP/many.geojsonl"
+    $PY - "$TMP/stdout" <<'EOF' || fail "distinct-value cap"
+import json, sys
+ids, kind = json.load(open(sys.argv[1]))["layers"][0]["fields"]
+# The cap is 200,000 tracked values: the last 5 ids are counted as untracked.
+assert ids["distinct"] == 200000 and not ids["distinct_exact"] and ids["untracked"] == 5, ids
+assert ids["filled"] == 200005 and len(ids["top"]) == 15, ids["filled"]
+assert kind["distinct"] == 3 and kind["distinct_exact"], kind
+assert [(t["value"], t["count"]) for t in kind["top"]] == [("A", 66669), ("B", 66668), ("C", 66668)]
+EOF
+    expect_rc 0 "$STOCKTAKE" inspect -q "$TMP/many.geojsonl"
+    grep -qF 'more than 200000 distinct values (5 occurrences not tracked)' "$TMP/stdout" ||
+        fail "text output of the cap: $(grep 'field "id"' "$TMP/stdout")"
+fi
+
 # ---- a shapefile in UTM 31N: CRS, lon/lat extent, missing and unknown CRS ---------
 ogr2ogr -f "ESRI Shapefile" -lco ENCODING=UTF-8 -t_srs EPSG:32631 \
     "$TMP/town.shp" "$T" 2>/dev/null || fail "ogr2ogr could not make the fixture"
