@@ -87,24 +87,31 @@ static int all_digits(const char *s, size_t n)
     return 1;
 }
 
-/* Returns owned definition ready for proj_create: surrounding white space
-** and a UTF-8 byte-order mark removed (both occur in .prj files), a bare
-** number read as an EPSG code, "+type=crs" added to a PROJ string. */
-static char *normalise_def(const char *def)
+/* The definition ready for proj_create: surrounding white space and a
+** UTF-8 byte-order mark removed (both occur in .prj files), a bare number
+** read as an EPSG code, "+type=crs" added to a PROJ string. Returns 'def'
+** itself when nothing changes (the usual case: no allocation), else an
+** owned copy also stored in *owned; NULL on no memory. */
+static const char *normalise_def(const char *def, char **owned)
 {
+    *owned = NULL;
     if (strncmp(def, "\xEF\xBB\xBF", 3) == 0)
         def += 3;
     while (*def == ' ' || *def == '\t' || *def == '\r' || *def == '\n')
         def++;
-    size_t n = strlen(def);
+    size_t len = strlen(def), n = len;
     while (n > 0 && (def[n - 1] == ' ' || def[n - 1] == '\t' ||
                      def[n - 1] == '\r' || def[n - 1] == '\n'))
         n--;
     if (all_digits(def, n))
-        return st_strdup_printf("EPSG:%.*s", (int)n, def);
-    if (def[0] == '+' && !strstr(def, "+type=crs"))
-        return st_strdup_printf("%.*s +type=crs", (int)n, def);
-    return st_strndup(def, n);
+        *owned = st_strdup_printf("EPSG:%.*s", (int)n, def);
+    else if (def[0] == '+' && !strstr(def, "+type=crs"))
+        *owned = st_strdup_printf("%.*s +type=crs", (int)n, def);
+    else if (n < len)
+        *owned = st_strndup(def, n);
+    else
+        return def;
+    return *owned;
 }
 
 /* Parse 'def' into a horizontal CRS on s's context: *out is an owned PJ.
@@ -113,11 +120,12 @@ static char *normalise_def(const char *def)
 static st_status parse_crs(proj_session *s, const char *def, PJ **out)
 {
     *out = NULL;
-    char *norm = normalise_def(def);
+    char *owned;
+    const char *norm = normalise_def(def, &owned);
     if (!norm)
         return ST_ERR_NOMEM;
     PJ *crs = proj_create(s->ctx, norm);
-    st_free(norm);
+    st_free(owned);
     if (!crs) {
         if (!s->message[0])
             snprintf(s->message, sizeof s->message, "not a definition PROJ knows");
