@@ -18,7 +18,9 @@
 **          second pass writes.
 ** Errors:  any failure prints the library's diagnostic (file and place),
 **          exits 2 and leaves no OUT (the writer is closed without
-**          commit). OUT naming the same file as IN is refused.
+**          commit). OUT naming the same file as IN is refused. SIGINT,
+**          SIGTERM and SIGHUP stop the conversion the same way (no OUT, no
+**          temporary file), then end the process as the signal would.
 */
 #include <stdlib.h>
 #include <string.h>
@@ -114,6 +116,14 @@ static int same_file(const char *in_spec, const char *out)
 
 /* ---- pass 1: survey ------------------------------------------------------ */
 
+static st_status check_interrupt(st_diags *diags)
+{
+    if (!st_cli_interrupted())
+        return ST_OK;
+    return st_diags_add(diags, ST_SEV_ERROR, ST_ERR_IO, NULL,
+                        "interrupted; the output was not written");
+}
+
 typedef struct survey {
     st_fields fields;      /* every field, in the order first seen */
     unsigned types;        /* bit (1 << st_geom_type) per geometry type seen */
@@ -144,6 +154,8 @@ static st_status survey_input(const char *in, const st_read_options *ropt,
     st_progress_start(&p, "reading", o->quiet);
     for (;;) {
         st_feature *f = NULL;
+        if ((rc = check_interrupt(diags)) != ST_OK)
+            break;
         rc = st_reader_next(r, &f);
         if (rc != ST_OK || !f)
             break;
@@ -246,7 +258,7 @@ static st_status write_output(const convert_opts *o, const st_read_options *ropt
     st_progress p;
     st_progress_start(&p, "writing", o->quiet);
     uint64_t n = 0;
-    while (rc == ST_OK) {
+    while (rc == ST_OK && (rc = check_interrupt(diags)) == ST_OK) {
         st_feature *f = NULL;
         rc = st_reader_next(r, &f);
         if (rc != ST_OK || !f)
@@ -323,8 +335,10 @@ int st_cmd_convert(int argc, char **argv)
     st_diags diags;
     st_diags_init(&diags);
     uint64_t written = 0;
+    st_cli_catch_interrupts();
     st_status rc = convert(&o, &diags, &written);
     st_cli_print_diags(&diags);
+    st_cli_reraise();
     if (rc != ST_OK && !diags.errors)
         fprintf(stderr, "stocktake convert: %s: %s\n", o.out,
                 rc == ST_ERR_NOMEM ? "out of memory" : st_status_name(rc));

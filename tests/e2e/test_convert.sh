@@ -103,6 +103,28 @@ expect_rc 0 "$STOCKTAKE" convert --help
 grep -q "usage: stocktake convert" "$TMP/stdout" || fail "--help"
 [ "$(sha "$T")" = "$before" ] || fail "the input was modified"
 
+# ---- SIGTERM during a long conversion: no output, no temporary file --------------------
+$PY - "$TMP/big.geojsonl" <<'EOF'
+import sys
+with open(sys.argv[1], "w") as fp:
+    for i in range(400000):
+        x, y = 3.2 + (i % 1000) * 1e-4, 51.1 + (i // 1000) * 1e-4
+        fp.write('{"type":"Feature","properties":{"n":%d},"geometry":{"type":"Point","coordinates":[%.7f,%.7f]}}\n' % (i, x, y))
+EOF
+rm -rf "$OUT"; mkdir -p "$OUT"
+"$STOCKTAKE" convert -q "$TMP/big.geojsonl" "$OUT/big.csv" 2>"$TMP/stderr" &
+pid=$!
+sleep 1
+kill -TERM "$pid" 2>/dev/null
+wait "$pid"
+rc=$?
+# If the machine finished the job within the second, there is nothing to check.
+if [ $rc -ne 0 ]; then
+    [ $rc -eq 143 ] || fail "after SIGTERM convert exited $rc, expected 143 (128 + SIGTERM)"
+    expect_stderr "interrupted"
+    no_output_left
+fi
+
 # ---- shapefile input in UTM: --crs, unknown CRS, writer notes ------------------------
 ogr2ogr -f "ESRI Shapefile" -lco ENCODING=UTF-8 -t_srs EPSG:32631 \
     "$TMP/town.shp" "$T" 2>/dev/null || fail "ogr2ogr could not make the fixture"
