@@ -10,8 +10,8 @@
 ** Errors:  a bad footprint is never an error: it becomes a finding and,
 **          where it cannot be used, status ST_STATUS_REJECTED. The check
 **          itself fails only on ST_ERR_NOMEM, and then changes nothing.
-** Limits:  a feature with more than ST_FOOTPRINT_MAX_COORDS coordinates is
-**          rejected unchecked (shape.too-many-vertices).
+** Limits:  a feature with more than ST_FOOTPRINT_MAX_COORDS coordinates
+**          (or rings) is rejected unchecked (shape.too-many-vertices).
 **
 ** Threads: an st_footprint_config is read-only while checking and may be
 ** shared; an st_footprint_checker (GEOS context, geodesic, scratch space)
@@ -30,7 +30,7 @@
 #include "stocktake/feature.h"
 #include "stocktake/finding.h"
 
-/* Hard limit on the coordinates of one feature (all rings together). */
+/* Hard limit on the coordinates (and on the rings) of one feature. */
 #define ST_FOOTPRINT_MAX_COORDS 1000000u
 
 /* ---- flags set in st_feature.flags ------------------------------------ */

@@ -80,7 +80,7 @@ typedef struct fp_run {
     st_geom work;              /* the geometry being checked (owned copy) */
     int changed;               /* work differs from the source */
     GEOSGeometry *final_gx;    /* GEOS twin of a valid 'work' (unwrapped), or NULL */
-    int unwrapped;             /* work's longitudes are shifted by fp_unwrap */
+    int unwrapped;             /* work's longitudes are shifted by st_fp_unwrap */
     double source_area;
     double area, perimeter;
 } fp_run;
@@ -172,11 +172,12 @@ static st_status check_kind(fp_run *r)
         return add(r, ST_FP_EMPTY, NAN, NAN, "the %s has no coordinates",
                    st_geom_type_name(g->type));
     }
-    if (g->ncoords > ST_FOOTPRINT_MAX_COORDS) {
+    if (g->ncoords > ST_FOOTPRINT_MAX_COORDS || g->nrings > ST_FOOTPRINT_MAX_COORDS) {
         r->flags |= ST_FLAG_MANY_VERTICES;
-        reject(r, "more than %u vertices", ST_FOOTPRINT_MAX_COORDS);
-        return add(r, ST_FP_MANY_VERTICES, x, y, "%u vertices: beyond the hard limit of %u",
-                   g->ncoords, ST_FOOTPRINT_MAX_COORDS);
+        reject(r, "more than %u vertices or rings", ST_FOOTPRINT_MAX_COORDS);
+        return add(r, ST_FP_MANY_VERTICES, x, y,
+                   "%u vertices in %u rings: beyond the hard limit of %u",
+                   g->ncoords, g->nrings, ST_FOOTPRINT_MAX_COORDS);
     }
     if (g->type == ST_GEOM_COLLECTION) {
         r->flags |= ST_FLAG_WRONG_TYPE;
@@ -226,7 +227,7 @@ static st_status check_swapped(fp_run *r)
     if (rc != ST_OK)
         return rc;
     if (r->cfg->repair == ST_REPAIR_MAKE_VALID) {
-        fp_swap_axes(&r->work);
+        st_fp_swap_axes(&r->work);
         note_repair(r, "swapped longitude and latitude back");
     } else if (r->cfg->repair == ST_REPAIR_REJECT) {
         reject(r, "latitude and longitude look swapped%s", policy_words(r));
@@ -301,7 +302,7 @@ static st_status prepare_rings(fp_run *r, const fp_scan *s)
     st_geom clean;
     st_geom_init(&clean);
     uint32_t dropped;
-    st_status rc = fp_clean(r->ck, &r->work, &clean, &dropped);
+    st_status rc = st_fp_clean(r->ck, &r->work, &clean, &dropped);
     if (rc != ST_OK)
         return rc;
     st_geom_clear(&r->work);
@@ -350,7 +351,7 @@ static st_status geos_failed(fp_run *r, const char *what)
     reject(r, "GEOS could not process the geometry");
     double x, y;
     first_xy(&r->work, &x, &y);
-    return add(r, ST_FP_GEOS_ERROR, fp_rewrap_lon(x), y, "%s: %s", what,
+    return add(r, ST_FP_GEOS_ERROR, st_fp_rewrap_lon(x), y, "%s: %s", what,
                r->ck->gx->last_error[0] ? r->ck->gx->last_error : "unknown error");
 }
 
@@ -360,7 +361,7 @@ static void point_of(st_geos *gx, const GEOSGeometry *pt, double *x, double *y)
     if (pt && GEOSisEmpty_r(gx->h, pt) == 0) {
         GEOSGeomGetX_r(gx->h, pt, x);
         GEOSGeomGetY_r(gx->h, pt, y);
-        *x = fp_rewrap_lon(*x);
+        *x = st_fp_rewrap_lon(*x);
     }
 }
 
@@ -370,14 +371,14 @@ static st_status repair(fp_run *r, const GEOSGeometry *in)
     st_geom_init(&fixed);
     fp_repair_info info;
     GEOSGeometry *twin;
-    st_status rc = fp_repair(r->ck, r->cfg, in, &fixed, &twin, &info);
+    st_status rc = st_fp_repair(r->ck, r->cfg, in, &fixed, &twin, &info);
     if (rc != ST_OK)
         return rc;
     if (!twin) {
         double x, y;
         first_xy(&r->work, &x, &y);
         reject(r, "repair failed: %s", info.failure);
-        return add(r, ST_FP_REPAIR_FAILED, fp_rewrap_lon(x), y, "%s", info.failure);
+        return add(r, ST_FP_REPAIR_FAILED, st_fp_rewrap_lon(x), y, "%s", info.failure);
     }
     st_geom_clear(&r->work);
     r->work = fixed;
@@ -389,7 +390,7 @@ static st_status repair(fp_run *r, const GEOSGeometry *in)
     if (info.parts_dropped) {
         double x, y;
         first_xy(&r->work, &x, &y);
-        rc = add(r, ST_FP_PARTS_DROPPED, fp_rewrap_lon(x), y,
+        rc = add(r, ST_FP_PARTS_DROPPED, st_fp_rewrap_lon(x), y,
                  "the repair dropped %u part(s) smaller than %g m2 (%.2f m2 together)",
                  info.parts_dropped, r->cfg->min_area_m2, info.dropped_area);
     }
@@ -402,7 +403,7 @@ static st_status check_validity(fp_run *r)
     st_geos *gx = r->ck->gx;
     char err[256] = "";
     GEOSGeometry *g = st_geom_to_geos(gx, &r->work, err, sizeof err);
-    if (!g && fp_out_of_memory(err))
+    if (!g && st_fp_out_of_memory(err))
         return ST_ERR_NOMEM;
     if (!g)
         return geos_failed(r, err[0] ? err : "cannot build the geometry");
@@ -413,7 +414,7 @@ static st_status check_validity(fp_run *r)
     if (valid == 1) {
         r->final_gx = g;
         g = NULL;
-    } else if (valid != 1 && !why) {
+    } else if (!why) {          /* 2: GEOS raised an exception */
         rc = geos_failed(r, "validity check failed");
     } else {
         st_fp_code code = code_of_reason(why);
@@ -443,7 +444,7 @@ static st_status check_validity(fp_run *r)
 static void label_point(fp_run *r, double *x, double *y)
 {
     first_xy(&r->work, x, y);
-    *x = fp_rewrap_lon(*x);
+    *x = st_fp_rewrap_lon(*x);
     if (!r->final_gx)
         return;
     GEOSGeometry *pt = GEOSPointOnSurface_r(r->ck->gx->h, r->final_gx);
@@ -543,19 +544,19 @@ static st_status check_geometry(fp_run *r)
     r->area = r->source_area;
     r->perimeter = perimeter;
     fp_scan s;
-    if ((rc = fp_scan_rings(r->ck, &r->work, r->cfg->spike_angle_deg, &s)) != ST_OK)
+    if ((rc = st_fp_scan_rings(r->ck, &r->work, r->cfg->spike_angle_deg, &s)) != ST_OK)
         return rc;
     if ((rc = report_scan(r, &s)) != ST_OK)
         return rc;
     if ((rc = prepare_rings(r, &s)) != ST_OK || rejected(r))
         return rc;
     if (s.crosses) {
-        fp_unwrap(&r->work);
+        st_fp_unwrap(&r->work);
         r->unwrapped = 1;
     }
     rc = check_validity(r);
     if (r->unwrapped)
-        fp_rewrap(&r->work);
+        st_fp_rewrap(&r->work);
     return rc;
 }
 

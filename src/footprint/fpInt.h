@@ -34,34 +34,34 @@ typedef struct fp_scan {
 
 /* Walk every ring of g (borrowed). spike_deg: angle below which a vertex
 ** is a spike (0 = no spike check). ST_ERR_NOMEM on no memory. */
-st_status fp_scan_rings(st_footprint_checker *ck, const st_geom *g,
+st_status st_fp_scan_rings(st_footprint_checker *ck, const st_geom *g,
                         double spike_deg, fp_scan *out) ST_MUST_CHECK;
 
 /* Build in 'dst' (cleared first) a copy of the polygonal 'src' with every
 ** ring closed, consecutive repeated vertices removed, and rings of fewer
 ** than 3 distinct vertices dropped (a shell takes its part with it).
 ** A collection becomes a multipolygon. *dropped counts dropped rings. */
-st_status fp_clean(st_footprint_checker *ck, const st_geom *src, st_geom *dst,
+st_status st_fp_clean(st_footprint_checker *ck, const st_geom *src, st_geom *dst,
                    uint32_t *dropped) ST_MUST_CHECK;
 
 /* Exchange x and y of every coordinate. */
-void fp_swap_axes(st_geom *g);
+void st_fp_swap_axes(st_geom *g);
 /* Longitudes below 0 + 360 (so a footprint across the antimeridian is
 ** contiguous for GEOS's planar algorithms), and back: above 180 - 360. */
-void fp_unwrap(st_geom *g);
-void fp_rewrap(st_geom *g);
-double fp_rewrap_lon(double x);
+void st_fp_unwrap(st_geom *g);
+void st_fp_rewrap(st_geom *g);
+double st_fp_rewrap_lon(double x);
 
 /* Geodesic area and perimeter of ring r of g (signed area: counter-
 ** clockwise positive). */
-void fp_ring_measure(const st_footprint_checker *ck, const st_geom *g, uint32_t r,
+void st_fp_ring_measure(const st_footprint_checker *ck, const st_geom *g, uint32_t r,
                      double *area, double *perimeter);
 /* Geodesic area of part p: |shell| - sum |holes|. */
-double fp_part_area(const st_footprint_checker *ck, const st_geom *g, uint32_t p);
+double st_fp_part_area(const st_footprint_checker *ck, const st_geom *g, uint32_t p);
 
 /* 1 when st_geom_to_geos failed for want of memory (its only way to say
 ** so is its message), so the caller returns ST_ERR_NOMEM, not a finding. */
-int fp_out_of_memory(const char *geos_err);
+int st_fp_out_of_memory(const char *geos_err);
 
 /* What the repair did, for the findings. */
 typedef struct fp_repair_info {
@@ -80,7 +80,7 @@ typedef struct fp_repair_info {
 ** GEOSGeom_destroy_r); when no valid polygonal result exists, *out is null,
 ** *out_gx NULL and info->failure says why. ST_ERR_NOMEM on no memory.
 */
-st_status fp_repair(st_footprint_checker *ck, const st_footprint_config *cfg,
+st_status st_fp_repair(st_footprint_checker *ck, const st_footprint_config *cfg,
                     const GEOSGeometry *in, st_geom *out, GEOSGeometry **out_gx,
                     fp_repair_info *info) ST_MUST_CHECK;
 

@@ -16,7 +16,7 @@
 
 #include "fpInt.h"
 
-void fp_ring_measure(const st_footprint_checker *ck, const st_geom *g, uint32_t r,
+void st_fp_ring_measure(const st_footprint_checker *ck, const st_geom *g, uint32_t r,
                      double *area, double *perimeter)
 {
     struct geod_polygon poly;
@@ -29,11 +29,11 @@ void fp_ring_measure(const st_footprint_checker *ck, const st_geom *g, uint32_t 
     geod_polygon_compute(&ck->geod, &poly, 0, 1, area, perimeter);
 }
 
-double fp_part_area(const st_footprint_checker *ck, const st_geom *g, uint32_t p)
+double st_fp_part_area(const st_footprint_checker *ck, const st_geom *g, uint32_t p)
 {
     double total = 0.0, a, len;
     for (uint32_t r = g->part_ring[p]; r < g->part_ring[p + 1]; r++) {
-        fp_ring_measure(ck, g, r, &a, &len);
+        st_fp_ring_measure(ck, g, r, &a, &len);
         /* Orientation is not a validity rule (REFERENCES.md 3.1), so take
         ** each ring's size and let holes subtract (section 2, row 12b). */
         total += r == g->part_ring[p] ? fabs(a) : -fabs(a);
@@ -53,14 +53,14 @@ void st_footprint_measure(const st_footprint_checker *ck, const st_geom *g,
     double area = 0.0, perimeter = 0.0;
     if (is_polygonal(g)) {
         for (uint32_t p = 0; p < g->nparts; p++)
-            area += fp_part_area(ck, g, p);
+            area += st_fp_part_area(ck, g, p);
         /* The outline only -- the shells' length, as pyproj's
         ** geometry_area_perimeter reports it (holes add no perimeter). */
         for (uint32_t p = 0; p < g->nparts; p++) {
             double a, len;
             if (g->part_ring[p] == g->part_ring[p + 1])
                 continue;
-            fp_ring_measure(ck, g, g->part_ring[p], &a, &len);
+            st_fp_ring_measure(ck, g, g->part_ring[p], &a, &len);
             perimeter += len;
         }
     }

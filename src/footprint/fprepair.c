@@ -103,7 +103,7 @@ static st_status keep_large_parts(const st_footprint_checker *ck, const st_geom 
     uint32_t largest = 0;
     double largest_area = -INFINITY;
     for (uint32_t p = 0; p < src->nparts; p++) {
-        double a = fp_part_area(ck, src, p);
+        double a = st_fp_part_area(ck, src, p);
         if (a > largest_area) {
             largest_area = a;
             largest = p;
@@ -112,7 +112,7 @@ static st_status keep_large_parts(const st_footprint_checker *ck, const st_geom 
     st_geom_clear(dst);
     dst->type = ST_GEOM_MULTIPOLYGON;
     for (uint32_t p = 0; p < src->nparts; p++) {
-        double a = fp_part_area(ck, src, p);
+        double a = st_fp_part_area(ck, src, p);
         if (p != largest && a < min_area) {
             info->parts_dropped++;
             info->dropped_area += a;
@@ -125,7 +125,7 @@ static st_status keep_large_parts(const st_footprint_checker *ck, const st_geom 
     return ST_OK;
 }
 
-int fp_out_of_memory(const char *geos_err)
+int st_fp_out_of_memory(const char *geos_err)
 {
     return strcmp(geos_err, "out of memory") == 0;   /* core/geomx.c's words */
 }
@@ -137,7 +137,7 @@ static st_status valid_twin(st_geos *gx, const st_geom *g, GEOSGeometry **twin,
     char err[256] = "";
     *twin = st_geom_to_geos(gx, g, err, sizeof err);
     if (!*twin) {
-        if (fp_out_of_memory(err))
+        if (st_fp_out_of_memory(err))
             return ST_ERR_NOMEM;
         snprintf(info->failure, sizeof info->failure, "repaired geometry unusable: %s", err);
         return ST_OK;
@@ -155,7 +155,7 @@ static int is_polygonal(st_geom_type t)
     return t == ST_GEOM_POLYGON || t == ST_GEOM_MULTIPOLYGON || t == ST_GEOM_COLLECTION;
 }
 
-st_status fp_repair(st_footprint_checker *ck, const st_footprint_config *cfg,
+st_status st_fp_repair(st_footprint_checker *ck, const st_footprint_config *cfg,
                     const GEOSGeometry *in, st_geom *out, GEOSGeometry **out_gx,
                     fp_repair_info *info)
 {
@@ -182,7 +182,7 @@ st_status fp_repair(st_footprint_checker *ck, const st_footprint_config *cfg,
         rc = keep_large_parts(ck, &raw, cfg->min_area_m2, &kept, info);
     uint32_t dropped_rings;
     if (rc == ST_OK)
-        rc = fp_clean(ck, &kept, out, &dropped_rings);
+        rc = st_fp_clean(ck, &kept, out, &dropped_rings);
     if (rc == ST_OK && out->nparts == 0)
         set_failure(info, "nothing polygonal is left after MakeValid", NULL);
     else if (rc == ST_OK) {

@@ -127,7 +127,7 @@ static int ring_crosses(const st_geom *g, uint32_t a, uint32_t b)
     return 0;
 }
 
-st_status fp_scan_rings(st_footprint_checker *ck, const st_geom *g, double spike_deg,
+st_status st_fp_scan_rings(st_footprint_checker *ck, const st_geom *g, double spike_deg,
                         fp_scan *s)
 {
     memset(s, 0, sizeof *s);
@@ -200,7 +200,7 @@ static st_status clean_part(st_footprint_checker *ck, const st_geom *src, uint32
     return ST_OK;
 }
 
-st_status fp_clean(st_footprint_checker *ck, const st_geom *src, st_geom *dst,
+st_status st_fp_clean(st_footprint_checker *ck, const st_geom *src, st_geom *dst,
                    uint32_t *dropped)
 {
     st_geom_clear(dst);
@@ -218,7 +218,7 @@ st_status fp_clean(st_footprint_checker *ck, const st_geom *src, st_geom *dst,
     return ST_OK;
 }
 
-void fp_swap_axes(st_geom *g)
+void st_fp_swap_axes(st_geom *g)
 {
     for (uint32_t i = 0; i < g->ncoords; i++) {
         double t = g->xy[2 * i];
@@ -227,20 +227,20 @@ void fp_swap_axes(st_geom *g)
     }
 }
 
-void fp_unwrap(st_geom *g)
+void st_fp_unwrap(st_geom *g)
 {
     for (uint32_t i = 0; i < g->ncoords; i++)
         if (g->xy[2 * i] < 0.0)
             g->xy[2 * i] += 360.0;
 }
 
-double fp_rewrap_lon(double x)
+double st_fp_rewrap_lon(double x)
 {
     return x > 180.0 ? x - 360.0 : x;
 }
 
-void fp_rewrap(st_geom *g)
+void st_fp_rewrap(st_geom *g)
 {
     for (uint32_t i = 0; i < g->ncoords; i++)
-        g->xy[2 * i] = fp_rewrap_lon(g->xy[2 * i]);
+        g->xy[2 * i] = st_fp_rewrap_lon(g->xy[2 * i]);
 }
