@@ -180,7 +180,7 @@ static char *sidecar_path(const char *stem, const char *ext, int *exists)
     if (!p || file_size(p) >= 0)
         return p;
     char *q = st_strdup_printf("%s%s", stem, upper);
-    if (q && file_size(q) >= 0) {
+    if (!q || file_size(q) >= 0) {
         st_free(p);
         return q;
     }
@@ -295,7 +295,7 @@ static st_status check_main_header(st_reader *r, const char *path, const char *w
 
 /* ---- text decoding ---------------------------------------------------- */
 
-enum { ENC_UTF8, ENC_ICONV, ENC_GUESS };
+enum { ENC_GUESS, ENC_UTF8, ENC_ICONV };   /* ENC_GUESS = 0: the default */
 
 /*
 ** DBF language driver IDs (header byte 29) and their code pages. 0x01,
@@ -1766,6 +1766,21 @@ static void free_names(char *names[OUT_NPARTS])
         st_free(names[i]);
 }
 
+/* Remove the files 'path' with its extension replaced by each of 'exts'
+** (best effort). Uses no heap memory, so it also works when memory is
+** short and a failure cannot go unreported. */
+static void remove_siblings(const char *path, const char *const *exts, size_t n)
+{
+    size_t stem = strlen(path) - strlen(st_path_ext(path));
+    char name[PATH_MAX + 8];
+    if (stem >= PATH_MAX)
+        return;   /* no such file could have been created */
+    for (size_t i = 0; i < n; i++) {
+        snprintf(name, sizeof name, "%.*s%s", (int)stem, path, exts[i]);
+        remove(name);
+    }
+}
+
 /* Rename the five temporary files into place, the .shp last. On failure
 ** the ones already moved (and any .shp at the target) are removed, so
 ** nothing is left at the target. Stale spatial indexes of an earlier file
@@ -1792,14 +1807,7 @@ static st_status shp_commit(st_writer *w)
     }
     if (rc == ST_OK) {
         static const char *const stale[] = {".qix", ".sbn", ".sbx", ".QIX", ".SBN", ".SBX"};
-        char *stem = path_without_ext(w->path);
-        for (size_t i = 0; stem && i < sizeof stale / sizeof stale[0]; i++) {
-            char *p = st_strdup_printf("%s%s", stem, stale[i]);
-            if (p)
-                remove(p);
-            st_free(p);
-        }
-        st_free(stem);
+        remove_siblings(w->path, stale, sizeof stale / sizeof stale[0]);
     }
     free_names(from);
     free_names(to);
@@ -1807,20 +1815,12 @@ static st_status shp_commit(st_writer *w)
 }
 
 /* Close and delete whatever temporary files exist; also called when the
-** handles are already gone (a commit that failed). Uses no heap memory, so
-** it works when memory is short. */
+** handles are already gone (a commit that failed). */
 static void shp_discard(st_writer *w)
 {
     writer_free(w->impl);
     w->impl = NULL;
-    size_t stem = strlen(w->tmp_path) - strlen(st_path_ext(w->tmp_path));
-    char path[PATH_MAX + 8];
-    if (stem >= PATH_MAX)
-        return;   /* no such file could have been created */
-    for (int i = 0; i < OUT_NPARTS; i++) {
-        snprintf(path, sizeof path, "%.*s%s", (int)stem, w->tmp_path, out_parts[i]);
-        remove(path);
-    }
+    remove_siblings(w->tmp_path, out_parts, OUT_NPARTS);
 }
 
 static const char *const shp_ext[] = {".shp", NULL};
