@@ -1074,6 +1074,77 @@ static void test_real_counts_match_gdal(void **state)
     }
 }
 
+/* Belém read, written by our writer, read again: the same features, and
+** GDAL counts the same number in the written file. */
+static void test_real_round_trip(void **state)
+{
+    (void)state;
+    char src[1024], dir[64], out[512];
+    if (!real_path("belem/buildings.shp", src, sizeof src))
+        skip();
+    make_dir(dir, sizeof dir);
+    snprintf(out, sizeof out, "%s/belem.shp", dir);
+    st_diags d;
+    st_diags_init(&d);
+    st_read_options o = ST_READ_OPTIONS_DEFAULT;
+    o.keep_source_crs = 1;
+    st_reader *r = NULL;
+    st_writer *w = NULL;
+    assert_int_equal(st_reader_open(src, &o, &d, &r), ST_OK);
+    assert_int_equal(st_writer_open(out, &d, &w), ST_OK);
+    assert_int_equal(st_writer_begin_layer(w, "belem", st_reader_fields(r),
+                                           ST_GEOM_MULTIPOLYGON), ST_OK);
+    st_feature *f;
+    while (st_reader_next(r, &f) == ST_OK && f) {
+        assert_int_equal(st_writer_write(w, f), ST_OK);
+        st_feature_free(f);
+    }
+    assert_int_equal(st_writer_commit(w), ST_OK);
+    st_writer_close(w);
+    st_reader_close(r);
+
+    st_reader *a = NULL, *b = NULL;
+    assert_int_equal(st_reader_open(src, &o, &d, &a), ST_OK);
+    assert_int_equal(st_reader_open(out, &o, &d, &b), ST_OK);
+    const st_fields *fa = st_reader_fields(a), *fb = st_reader_fields(b);
+    assert_int_equal(fa->count, fb->count);
+    for (uint32_t j = 0; j < fa->count; j++) {
+        assert_string_equal(fa->items[j].name, fb->items[j].name);
+        assert_int_equal(fa->items[j].type, fb->items[j].type);
+    }
+    long n = 0;
+    st_feature *x, *y;
+    while (st_reader_next(a, &x) == ST_OK && x) {
+        assert_int_equal(st_reader_next(b, &y), ST_OK);
+        assert_non_null(y);
+        st_geom_orient(&x->geom, 0);   /* the writer's orientation */
+        assert_int_equal(x->geom.type, y->geom.type);
+        assert_int_equal(x->geom.nrings, y->geom.nrings);
+        assert_int_equal(x->geom.ncoords, y->geom.ncoords);
+        assert_memory_equal(x->geom.xy, y->geom.xy, 2 * sizeof(double) * x->geom.ncoords);
+        for (uint32_t j = 0; j < fa->count; j++) {
+            const char *va = st_feature_value(x, j), *vb = st_feature_value(y, j);
+            if (!va)
+                assert_null(vb);
+            else
+                assert_string_equal(va, vb);
+        }
+        n++;
+        st_feature_free(x);
+        st_feature_free(y);
+    }
+    assert_int_equal(st_reader_next(b, &y), ST_OK);
+    assert_null(y);
+    st_reader_close(a);
+    st_reader_close(b);
+    assert_int_equal(d.errors, 0);
+    st_diags_free(&d);
+    long gdal = ogr_feature_count(out);
+    if (gdal >= 0)
+        assert_int_equal(gdal, n);
+    remove_dir(dir);
+}
+
 /* 1 if s holds a Cyrillic letter (U+0400..U+04FF: lead bytes D0..D3). */
 static int has_cyrillic(const char *s)
 {
@@ -1309,6 +1380,7 @@ int main(void)
         cmocka_unit_test(test_write_close_without_commit_leaves_nothing),
         cmocka_unit_test(test_real_counts_match_gdal),
         cmocka_unit_test(test_real_cyrillic_names_are_utf8),
+        cmocka_unit_test(test_real_round_trip),
         cmocka_unit_test(test_read_nomem_loop),
         cmocka_unit_test(test_write_nomem_loop),
     };
