@@ -1010,12 +1010,18 @@ static char *normalise_date(shp_reader *s, const char *t, size_t n)
 
 static st_status read_value(st_reader *r, shp_reader *s, int rec, int j, st_feature *f)
 {
+    /* Both calls below read the field into the same Shapelib buffer, so the
+    ** null test comes first; Shapelib says "null" when the read fails,
+    ** which the capture tells apart. */
     capture_begin();
-    const char *raw = DBFReadStringAttribute(s->dbf, rec, j);
-    if (!raw)
+    int is_null = DBFIsAttributeNULL(s->dbf, rec, j);
+    const char *raw = capture.failed || is_null ? NULL : DBFReadStringAttribute(s->dbf, rec, j);
+    if (capture.failed || (!is_null && !raw))
         return fail_file(r, s->dbf_path, ST_ERR_FORMAT, (long long)r->next_index,
                          "record %d: field '%s' cannot be read: %s", rec + 1,
                          r->fields.items[j].name, capture_text("unknown reason"));
+    if (is_null)
+        return ST_OK;
     size_t n = strlen(raw);
     if (n > ST_SHP_MAX_VALUE)
         return fail_file(r, s->dbf_path, ST_ERR_LIMIT, (long long)r->next_index,
@@ -1028,8 +1034,6 @@ static st_status read_value(st_reader *r, shp_reader *s, int rec, int j, st_feat
     }
     while (n > 0 && (raw[n - 1] == ' ' || raw[n - 1] == '\t'))
         n--;
-    if (DBFIsAttributeNULL(s->dbf, rec, j))
-        return ST_OK;
     char *v = NULL;
     switch (s->dbf_types[j]) {
     case 'N': case 'F':
