@@ -191,6 +191,11 @@ static void test_read_polygon_with_hole(void **state)
     ring rings[] = {{ccw_2_4, 5}, {cw_0_10, 5}};   /* the hole comes first */
     add_shape(h, SHPT_POLYGON, rings, 2);
     add_record(dbf, "house");
+    /* A hole whose first vertex lies on the shell's edge (valid OGC). */
+    static const double ccw_touching[] = {0, 5, 3, 4, 3, 6, 0, 5};
+    ring touching[] = {{cw_0_10, 5}, {ccw_touching, 4}};
+    add_shape(h, SHPT_POLYGON, touching, 2);
+    add_record(dbf, "touching");
     SHPClose(h);
     DBFClose(dbf);
 
@@ -199,7 +204,7 @@ static void test_read_polygon_with_hole(void **state)
     st_reader *r = NULL;
     assert_int_equal(open_layer(dir, "a.shp", &d, &r), ST_OK);
     assert_string_equal(st_reader_format_name(r), "shapefile");
-    assert_int_equal(st_reader_count_hint(r), 1);
+    assert_int_equal(st_reader_count_hint(r), 2);
     assert_true(st_reader_schema_fixed(r));
     assert_non_null(strstr(st_reader_crs(r), "GCS_WGS_1984"));
     st_feature *f = next_feature(r);
@@ -210,6 +215,11 @@ static void test_read_polygon_with_hole(void **state)
     assert_true(part_ring_area(&f->geom, 0, 1) == 4.0);
     assert_string_equal(f->source_id, "1");
     assert_string_equal(st_feature_value(f, 0), "house");
+    st_feature_free(f);
+    f = next_feature(r);
+    assert_int_equal(f->geom.type, ST_GEOM_POLYGON);
+    assert_int_equal(f->geom.nrings, 2);
+    assert_true(part_ring_area(&f->geom, 0, 1) == 3.0);
     st_feature_free(f);
     assert_int_equal(st_reader_next(r, &f), ST_OK);
     assert_null(f);
@@ -363,6 +373,91 @@ static void test_read_null_shape_is_carried(void **state)
     st_feature_free(f);
     st_reader_close(r);
     assert_int_equal(d.errors, 0);
+    st_diags_free(&d);
+    remove_dir(dir);
+}
+
+/* A record marked deleted in the DBF is not part of the layer; GDAL's
+** ogrinfo skips it the same way when it lists features. */
+static void test_read_skips_deleted_records(void **state)
+{
+    (void)state;
+    char dir[64];
+    make_dir(dir, sizeof dir);
+    DBFHandle dbf;
+    SHPHandle h = create_layer(dir, "d", SHPT_POLYGON, &dbf);
+    ring rings[] = {{cw_0_10, 5}};
+    for (int i = 0; i < 3; i++)
+        add_shape(h, SHPT_POLYGON, rings, 1);
+    add_record(dbf, "a");
+    add_record(dbf, "b");
+    add_record(dbf, "c");
+    assert_true(DBFMarkRecordDeleted(dbf, 1, 1));
+    SHPClose(h);
+    DBFClose(dbf);
+    st_diags d;
+    st_diags_init(&d);
+    st_reader *r = NULL;
+    assert_int_equal(open_layer(dir, "d.shp", &d, &r), ST_OK);
+    st_feature *f = next_feature(r);
+    assert_string_equal(f->source_id, "1");
+    st_feature_free(f);
+    f = next_feature(r);
+    assert_string_equal(f->source_id, "3");
+    assert_string_equal(st_feature_value(f, 0), "c");
+    assert_int_equal(f->index, 1);
+    st_feature_free(f);
+    assert_int_equal(st_reader_next(r, &f), ST_OK);
+    assert_null(f);
+    st_reader_close(r);
+    st_diags_free(&d);
+    remove_dir(dir);
+}
+
+/* More parts than ST_SHP_MAX_PARTS (100000) in one shape: ST_ERR_LIMIT
+** naming the feature, not a slow hole matching. */
+static void test_read_part_limit(void **state)
+{
+    (void)state;
+    char dir[64];
+    make_dir(dir, sizeof dir);
+    DBFHandle dbf;
+    SHPHandle h = create_layer(dir, "p", SHPT_POLYGON, &dbf);
+    ring rings[] = {{cw_0_10, 5}};
+    add_shape(h, SHPT_POLYGON, rings, 1);
+    add_record(dbf, "fine");
+    enum { N = 100001 };
+    int *starts = malloc(N * sizeof *starts);
+    double *x = malloc(N * sizeof *x), *y = malloc(N * sizeof *y);
+    assert_non_null(starts);
+    assert_non_null(x);
+    assert_non_null(y);
+    for (int i = 0; i < N; i++) {
+        starts[i] = i;
+        x[i] = i;
+        y[i] = -i;
+    }
+    SHPObject *o = SHPCreateObject(SHPT_POLYGON, -1, N, starts, NULL, N, x, y, NULL, NULL);
+    assert_true(SHPWriteObject(h, -1, o) == 1);
+    SHPDestroyObject(o);
+    free(starts);
+    free(x);
+    free(y);
+    add_record(dbf, "too many parts");
+    SHPClose(h);
+    DBFClose(dbf);
+    st_diags d;
+    st_diags_init(&d);
+    st_reader *r = NULL;
+    assert_int_equal(open_layer(dir, "p.shp", &d, &r), ST_OK);
+    st_feature *f = next_feature(r);
+    st_feature_free(f);
+    assert_int_equal(st_reader_next(r, &f), ST_ERR_LIMIT);
+    assert_null(f);
+    assert_int_equal(d.errors, 1);
+    assert_int_equal(d.items[0].feature, 1);
+    assert_non_null(strstr(d.items[0].message, "record 2: 100001 vertices in 100001 parts"));
+    st_reader_close(r);
     st_diags_free(&d);
     remove_dir(dir);
 }
@@ -1368,6 +1463,8 @@ int main(void)
         cmocka_unit_test(test_read_hole_without_shell_is_kept),
         cmocka_unit_test(test_read_polygon_z_and_m),
         cmocka_unit_test(test_read_null_shape_is_carried),
+        cmocka_unit_test(test_read_skips_deleted_records),
+        cmocka_unit_test(test_read_part_limit),
         cmocka_unit_test(test_read_encodings),
         cmocka_unit_test(test_read_unknown_cpg_warns),
         cmocka_unit_test(test_read_dbf_types),
