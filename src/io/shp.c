@@ -613,25 +613,26 @@ static st_status add_field(st_reader *r, shp_reader *s, int j)
     DBFGetFieldInfo(s->dbf, j, raw, &width, &decimals);
     s->dbf_types[j] = DBFGetNativeFieldType(s->dbf, j);
     char *name = decode_text(s, raw, strlen(raw));
+    if (name && !name[0]) {
+        st_free(name);
+        name = st_strdup_printf("field_%d", j + 1);
+    }
     if (!name)
         return ST_ERR_NOMEM;
-    for (int k = 1; !name[0] || st_fields_find(&r->fields, name) >= 0; k++) {
-        char *alt = name[0] ? st_strdup_printf("%s_%d", name, k + 1)
-                            : st_strdup_printf("field_%d", j + 1);
-        if (alt && st_fields_find(&r->fields, alt) < 0) {
-            st_free(name);
-            name = alt;
-            break;
-        }
-        st_free(alt);
-        if (!alt) {
+    char *unique = name;   /* "name", else "name_2", "name_3", ... */
+    for (int k = 2; st_fields_find(&r->fields, unique) >= 0; k++) {
+        if (unique != name)
+            st_free(unique);
+        if (!(unique = st_strdup_printf("%s_%d", name, k))) {
             st_free(name);
             return ST_ERR_NOMEM;
         }
     }
-    st_status rc = st_fields_add(&r->fields, name,
+    st_status rc = st_fields_add(&r->fields, unique,
                                  field_type_of(s->dbf_types[j], decimals),
                                  s->dbf_types[j] == 'D' ? 10 : width, decimals, NULL);
+    if (unique != name)
+        st_free(unique);
     st_free(name);
     return rc;
 }

@@ -584,6 +584,8 @@ static void test_read_dbf_types(void **state)
     assert_int_equal(DBFAddNativeFieldType(dbf, "flag", 'L', 1, 0), 4);
     assert_int_equal(DBFAddNativeFieldType(dbf, "when", 'D', 8, 0), 5);
     assert_int_equal(DBFAddNativeFieldType(dbf, "name", 'C', 10, 0), 6);
+    assert_int_equal(DBFAddNativeFieldType(dbf, "name", 'C', 10, 0), 7);   /* again */
+    assert_int_equal(DBFAddNativeFieldType(dbf, "", 'C', 10, 0), 8);
     ring rings[] = {{cw_0_10, 5}};
     add_shape(h, SHPT_POLYGON, rings, 1);
     assert_true(DBFWriteIntegerAttribute(dbf, 0, 0, -42));
@@ -595,7 +597,7 @@ static void test_read_dbf_types(void **state)
     assert_true(DBFWriteAttributeDirectly(dbf, 0, 5, date));
     assert_true(DBFWriteStringAttribute(dbf, 0, 6, "  padded "));
     add_shape(h, SHPT_POLYGON, rings, 1);
-    for (int j = 0; j < 7; j++)
+    for (int j = 0; j < 9; j++)
         assert_true(DBFWriteNULLAttribute(dbf, 1, j));
     SHPClose(h);
     DBFClose(dbf);
@@ -609,9 +611,13 @@ static void test_read_dbf_types(void **state)
     static const st_field_type want[] = {ST_FIELD_INTEGER, ST_FIELD_REAL, ST_FIELD_REAL,
                                          ST_FIELD_REAL, ST_FIELD_BOOLEAN, ST_FIELD_TEXT,
                                          ST_FIELD_TEXT};
-    assert_int_equal(fl->count, 7);
+    assert_int_equal(fl->count, 9);
     for (int j = 0; j < 7; j++)
         assert_int_equal(fl->items[j].type, want[j]);
+    /* Field names stay unique and non-empty (values are matched by index). */
+    assert_string_equal(fl->items[6].name, "name");
+    assert_string_equal(fl->items[7].name, "name_2");
+    assert_string_equal(fl->items[8].name, "field_9");
     st_feature *f = next_feature(r);
     assert_string_equal(st_feature_value(f, 0), "-42");
     assert_string_equal(st_feature_value(f, 1), "1.5");
@@ -622,7 +628,7 @@ static void test_read_dbf_types(void **state)
     assert_string_equal(st_feature_value(f, 6), "padded");
     st_feature_free(f);
     f = next_feature(r);
-    for (uint32_t j = 0; j < 7; j++)
+    for (uint32_t j = 0; j < 9; j++)
         assert_null(st_feature_value(f, j));
     st_feature_free(f);
     st_reader_close(r);
