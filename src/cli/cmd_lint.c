@@ -8,6 +8,7 @@
 ** Exit:    2 on any error (or a file that cannot be read), else 0, also
 **          when there are warnings.
 */
+#include <stdlib.h>
 #include <string.h>
 
 #include "cli.h"
@@ -27,6 +28,58 @@ void st_help_lint(FILE *out)
             "\n"
             "exit codes: 0 no errors (warnings allowed); 2 errors\n"
             "The language is described in docs/rules.md.\n");
+}
+
+/* Diagnostics in the order of the text: file (first seen first), line,
+** column, then the order they were found in. */
+typedef struct placed {
+    st_diag g;
+    size_t file_rank, order;
+} placed;
+
+static int by_place(const void *a, const void *b)
+{
+    const placed *x = a, *y = b;
+    if (x->file_rank != y->file_rank)
+        return x->file_rank < y->file_rank ? -1 : 1;
+    if (x->g.line != y->g.line)
+        return x->g.line < y->g.line ? -1 : 1;
+    if (x->g.col != y->g.col)
+        return x->g.col < y->g.col ? -1 : 1;
+    return x->order < y->order ? -1 : x->order > y->order;
+}
+
+/* Print 'd' sorted by place (falls back to the found order without memory). */
+static void print_sorted(const st_diags *d)
+{
+    placed *p = malloc((d->count ? d->count : 1) * sizeof *p);
+    st_diag *items = malloc((d->count ? d->count : 1) * sizeof *items);
+    if (!p || !items) {
+        free(p);
+        free(items);
+        st_cli_print_diags(d);
+        return;
+    }
+    for (size_t i = 0; i < d->count; i++) {
+        p[i].g = d->items[i];
+        p[i].order = i;
+        p[i].file_rank = i;
+        for (size_t k = 0; k < i; k++)
+            if ((!d->items[k].file && !d->items[i].file) ||
+                (d->items[k].file && d->items[i].file &&
+                 !strcmp(d->items[k].file, d->items[i].file))) {
+                p[i].file_rank = p[k].file_rank;
+                break;
+            }
+    }
+    qsort(p, d->count, sizeof *p, by_place);
+    for (size_t i = 0; i < d->count; i++)
+        items[i] = p[i].g;
+    st_diags view = *d;   /* shares the strings; only the order differs */
+    view.items = items;
+    st_cli_print_diags(&view);
+    free(items);
+    free(p);
 }
 
 int st_cmd_lint(int argc, char **argv)
@@ -57,7 +110,7 @@ int st_cmd_lint(int argc, char **argv)
     st_rules *rules = NULL;
     st_status rc = st_rules_load(paths, n, &diags, &rules);
     if (!quiet)
-        st_cli_print_diags(&diags);
+        print_sorted(&diags);
     if (rc == ST_ERR_NOMEM)
         fprintf(stderr, "stocktake lint: out of memory\n");
     size_t errors = diags.errors + (rc != ST_OK && diags.errors == 0 ? 1 : 0);

@@ -33,7 +33,8 @@ static const char *const known_settings[] = {
 };
 
 static const char *const measures[MEASURE_COUNT] = {"area_m2", "perimeter_m"};
-static const char *const functions[FN_COUNT] = {"ceil", "floor", "round", "min", "max", "abs"};
+static const char *const functions[FN_COUNT] = {"ceil", "floor", "round", "min",
+                                                "max",  "abs",   "year"};
 
 /* ---- helpers -------------------------------------------------------- */
 
@@ -311,8 +312,10 @@ static rtype check_name(st_rules *R, rexpr *e, int ctx, st_status *rc)
                      "unknown field or measure '%s'", e->text);
         return TY_ERR;
     }
+    /* Attributes may well be named like fields ("height" and "height_m"):
+    ** only a one-letter slip earns a warning. */
     const char *hint = closest_field(R, e->text);
-    if (hint)
+    if (hint && st_rtext_distance(e->text, hint, 1) <= 1)
         st_rdiag(R, ST_SEV_WARNING, ST_ERR_RULE, &e->span,
                  "'%s' is read as a source attribute (did you mean the field '%s'?)", e->text,
                  hint);
@@ -408,7 +411,7 @@ static rtype check_call(st_rules *R, rexpr *e, int ctx, st_status *rc)
                      "unknown function '%s' (did you mean '%s'?)", e->text, hint);
         else
             st_rdiag(R, ST_SEV_ERROR, ST_ERR_RULE, &e->span,
-                     "unknown function '%s' (known: ceil, floor, round, min, max, abs)", e->text);
+                     "unknown function '%s' (known: ceil, floor, round, min, max, abs, year)", e->text);
         return TY_ERR;
     }
     e->index = fn;
@@ -423,7 +426,11 @@ static rtype check_call(st_rules *R, rexpr *e, int ctx, st_status *rc)
         rtype t = check_expr(R, e->args[i], ctx, rc);
         if (t == TY_ERR)
             out = TY_ERR;
-        else if (!numeric(t)) {
+        else if (fn == FN_YEAR && t != TY_TEXT && t != TY_ANY) {
+            st_rdiag(R, ST_SEV_ERROR, ST_ERR_RULE, &e->args[i]->span,
+                     "year() reads a date written as text, found %s", type_name(t));
+            out = TY_ERR;
+        } else if (fn != FN_YEAR && !numeric(t)) {
             st_rdiag(R, ST_SEV_ERROR, ST_ERR_RULE, &e->args[i]->span,
                      "expected a number here, found %s", type_name(t));
             out = TY_ERR;

@@ -386,6 +386,12 @@ static rval eval_name(st_rules_ctx *c, const rexpr *e)
 static rval eval_call(st_rules_ctx *c, const rexpr *e)
 {
     double acc = 0;
+    if (e->index == FN_YEAR) {
+        rval v = eval(c, e->args[0]);
+        if ((v.t == V_TEXT || v.t == V_ATTR) && st_rtext_year(v.s, v.n, &acc))
+            return (rval){V_NUM, acc, NULL, 0};
+        return none;
+    }
     for (uint32_t i = 0; i < e->nargs; i++) {
         rval v = to_number(c, eval(c, e->args[i]));
         if (v.t != V_NUM)
@@ -555,7 +561,9 @@ static st_status run_derive(st_rules_ctx *c, const rderive *d)
         if (numeric)
             v = to_number(c, v);
         if (v.t == V_NONE || v.t == V_BOOL) {
-            if (c->unreadable && l->value->kind == E_NAME) {
+            /* A bare attribute that is not a number is worth listing; free
+            ** text searched for "R+2" is not. */
+            if (c->unreadable && l->value->kind == E_NAME && !(l->accept & ACCEPT_GROUND_PLUS)) {
                 char *s = st_strndup(c->unreadable, c->unreadable_len);
                 st_status rc = s ? st_unmapped_add(c->unmapped, f->name, s, 1) : ST_ERR_NOMEM;
                 st_free(s);

@@ -293,6 +293,18 @@ static st_status lex_one(rlexer *lx, rtok *t)
     if (lx->p >= lx->end) {
         t->type = T_EOF;
         set_span(lx, t, from);
+        /* Point after the last line's text rather than at the empty line a
+        ** final newline opens, so a caret has a line to stand under. */
+        if (lx->line > 1 && from == lx->line_start) {
+            const char *prev = from - 1;
+            const char *ls = prev;
+            while (ls > lx->start && ls[-1] != '\n')
+                ls--;
+            t->span.line = lx->line - 1;
+            t->span.off = (uint32_t)(prev - lx->start);
+            t->span.col = (uint32_t)(prev - ls) + 1;
+        }
+        t->span.len = 1;
         return ST_OK;
     }
     switch (CLS(*lx->p)) {

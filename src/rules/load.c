@@ -266,7 +266,9 @@ static st_status new_set(st_diags *diags, st_rules **out)
 /* Check the parsed set and hand it out, or free it. */
 static st_status finish(st_rules *R, st_status rc, st_rules **out)
 {
-    if (rc == ST_OK && R->errors == 0)
+    /* The checker runs after syntax errors too, so lint reports everything;
+    ** lines that failed to parse are simply absent. */
+    if (rc == ST_OK && !R->stopped)
         rc = st_rcheck_set(R);
     if (rc == ST_OK && R->errors > 0)
         rc = ST_ERR_RULE;

@@ -96,7 +96,7 @@ typedef enum {
 /* What a NAME in an expression resolved to (set by the checker). */
 typedef enum { REF_NONE, REF_MEASURE, REF_FIELD, REF_ATTR, REF_CODE } rref;
 enum { MEASURE_AREA, MEASURE_PERIMETER, MEASURE_COUNT };
-enum { FN_CEIL, FN_FLOOR, FN_ROUND, FN_MIN, FN_MAX, FN_ABS, FN_COUNT };
+enum { FN_CEIL, FN_FLOOR, FN_ROUND, FN_MIN, FN_MAX, FN_ABS, FN_YEAR, FN_COUNT };
 
 typedef struct rexpr {
     rexpr_kind kind;
@@ -335,6 +335,8 @@ size_t st_rtext_distance(const char *a, const char *b, size_t cap);
 ** "R+2" (ACCEPT_GROUND_PLUS: 3). Lengths come out in metres. Returns 1
 ** and *out on success, 0 when the text is not a number. */
 int st_rtext_number(const char *s, size_t n, unsigned accept, double *out);
+/* The first run of exactly four digits in s[0..n) as a year, if any. */
+int st_rtext_year(const char *s, size_t n, double *out);
 /* Trim ASCII spaces of s[0..*n) in place (returns new start). */
 const char *st_rtext_trim(const char *s, size_t *n);
 

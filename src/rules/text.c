@@ -426,3 +426,21 @@ int st_rtext_number(const char *s, size_t n, unsigned accept, double *out)
         return 1;
     return 0;
 }
+
+int st_rtext_year(const char *s, size_t n, double *out)
+{
+    for (size_t i = 0; i < n; i++) {
+        if (s[i] < '0' || s[i] > '9' || (i > 0 && s[i - 1] >= '0' && s[i - 1] <= '9'))
+            continue;
+        size_t j = i;
+        while (j < n && s[j] >= '0' && s[j] <= '9')
+            j++;
+        if (j - i == 4) {
+            *out = (s[i] - '0') * 1000 + (s[i + 1] - '0') * 100 + (s[i + 2] - '0') * 10 +
+                   (s[i + 3] - '0');
+            return 1;
+        }
+        i = j;
+    }
+    return 0;
+}
