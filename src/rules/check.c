@@ -62,7 +62,9 @@ static void pcre_free(void *p, void *data)
 static const char *closest(const char *word, const char *const *names, size_t n)
 {
     const char *best = NULL;
-    size_t bestd = strlen(word) <= 3 ? 2 : 3;
+    if (strlen(word) < 3)
+        return NULL;   /* a suggestion for 'b' is noise */
+    size_t bestd = strlen(word) <= 4 ? 2 : 3;
     for (size_t i = 0; i < n; i++) {
         size_t d = st_rtext_distance(word, names[i], 2);
         if (d < bestd) {
@@ -892,7 +894,7 @@ static st_status check_gates(st_rules *R)
         }
         if (g->pub.metric != ST_METRIC_DISTRICT_COMPLETENESS &&
             (g->pub.threshold < 0 || g->pub.threshold > 1))
-            st_rdiag(R, ST_SEV_ERROR, ST_ERR_RULE, &g->span,
+            st_rdiag(R, ST_SEV_ERROR, ST_ERR_RULE, &g->value_span,
                      "a share is between 0 and 1 (or 0%% and 100%%)");
         R->gates[R->ngates++] = g->pub;
     }

@@ -195,7 +195,7 @@ st_status st_rules_include(st_rules *R, const rspan *at, const char *path, int d
         for (int k = i; k < nchain && rc == ST_OK; k++)
             rc = st_buf_printf(&b, "%s -> ", display_of(R, chain[k]));
         if (rc == ST_OK)
-            rc = st_buf_puts(&b, name);
+            rc = st_buf_puts(&b, display_of(R, realbuf));
         if (rc == ST_OK)
             st_rdiag(R, ST_SEV_ERROR, ST_ERR_RULE, at, "include cycle: %s", b.data);
         st_buf_free(&b);

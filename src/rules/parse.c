@@ -1276,7 +1276,9 @@ static int gate_line(rparser *P, void *block)
     if (!parse_signed(P, &g->pub.threshold, &num))
         return 0;
     rspan end = num;
+    g->value_span = num;
     if (P->tok.type == T_PERCENT) {
+        g->value_span = join(&num, &P->tok.span);
         end = P->tok.span;
         g->pub.threshold /= 100.0;
         advance(P);
@@ -1349,9 +1351,17 @@ static void parse_statement(rparser *P)
                 }
             }
         }
-        if (best)
+        if (best) {
             perr_at(P, &P->tok.span, ST_ERR_RULE,
                     "expected a statement, found %s (did you mean '%s'?)", found, best);
+            /* A misspelt block keyword: skip its body rather than report
+            ** every line of it. */
+            if (strcmp(best, "include") != 0) {
+                skip_line(P);
+                while (!stop(P) && P->tok.type != T_EOF && !is_kw(&P->tok, "end"))
+                    skip_line(P);
+            }
+        }
         else if (is_kw(&P->tok, "end"))
             perr_at(P, &P->tok.span, ST_ERR_RULE, "'end' without a block to close");
         else

@@ -252,6 +252,7 @@ typedef struct rgate {
     st_gate_rule pub;
     const char *arg;        /* severity word or field name */
     rspan arg_span;
+    rspan value_span;       /* the threshold as written */
     struct rgate *next;
 } rgate;
 
