@@ -38,7 +38,7 @@ struct st_rules_ctx {
     uint32_t layer_count;
     const st_field *layer_items;
     int32_t *attr_field;
-    st_buf fold, part;
+    st_buf fold, part, whole;
     /* the feature being evaluated */
     st_feature *f;
     st_findings *out;
@@ -69,6 +69,7 @@ st_status st_rules_ctx_new(const st_rules *r, st_rules_ctx **out)
     c->R = r;
     st_buf_init(&c->fold, 0);
     st_buf_init(&c->part, 0);
+    st_buf_init(&c->whole, 0);
     c->gctx = pcre2_general_context_create(pcre_malloc, pcre_free, NULL);
     if (c->gctx)
         c->mctx = pcre2_match_context_create(c->gctx);
@@ -101,6 +102,7 @@ void st_rules_ctx_free(st_rules_ctx *c)
     st_free(c->attr_field);
     st_buf_free(&c->fold);
     st_buf_free(&c->part);
+    st_buf_free(&c->whole);
     st_free(c);
 }
 
@@ -289,10 +291,11 @@ static st_status run_map(st_rules_ctx *c, const rmap *m)
     if (!s)
         return ST_OK;
     /* A NUL-terminated copy: regexes and the literal table need one. */
-    char *whole = st_strndup(s, n);
-    if (!whole)
-        return ST_ERR_NOMEM;
-    st_status rc = ST_OK;
+    st_buf_clear(&c->whole);
+    st_status rc = st_buf_append(&c->whole, s, n);
+    if (rc != ST_OK)
+        return rc;
+    const char *whole = c->whole.data;
     int32_t li = map_find(c, m, whole, n, attr);
     if (li < 0 && c->rc == ST_OK && memchr(whole, ';', n))
         li = map_parts(c, m, whole, n, attr);
@@ -306,7 +309,6 @@ static st_status run_map(st_rules_ctx *c, const rmap *m)
     else if (li >= 0 && m->lines[li]->target)
         rc = set_value(f, m->field, m->lines[li]->target, strlen(m->lines[li]->target),
                        ST_PROV_SOURCE, m->lines[li]->rule);
-    st_free(whole);
     return rc;
 }
 
