@@ -18,6 +18,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 #include <unistd.h>
 
 #include "rulesInt.h"
@@ -62,6 +63,9 @@ static void pcre_free(void *p, void *data)
 static const char *closest(const char *word, const char *const *names, size_t n)
 {
     const char *best = NULL;
+    for (size_t i = 0; i < n; i++)
+        if (!strcasecmp(word, names[i]))
+            return names[i];   /* 'res' for 'RES' */
     if (strlen(word) < 3)
         return NULL;   /* a suggestion for 'b' is noise */
     size_t bestd = strlen(word) <= 4 ? 2 : 3;
@@ -402,6 +406,21 @@ static rtype check_binary(st_rules *R, rexpr *e, int ctx, st_status *rc)
 
 static rtype check_call(st_rules *R, rexpr *e, int ctx, st_status *rc)
 {
+    /* attribute("roof shape"): an attribute whose name is not a plain name.
+    ** The call becomes a name node. */
+    if (!strcmp(e->text, "attribute")) {
+        if (ctx != CTX_DERIVE || e->nargs != 1 || e->args[0]->kind != E_STR) {
+            st_rdiag(R, ST_SEV_ERROR, ST_ERR_RULE, &e->span,
+                     ctx != CTX_DERIVE ? "attribute() is only available in derive"
+                                       : "attribute() takes one attribute name in double quotes");
+            return TY_ERR;
+        }
+        e->kind = E_NAME;
+        e->text = e->args[0]->text;
+        e->ref = REF_ATTR;
+        e->index = intern_attr(R, e->text, rc);
+        return TY_ANY;
+    }
     int fn = -1;
     for (int i = 0; i < FN_COUNT; i++)
         if (!strcmp(e->text, functions[i]))
@@ -413,7 +432,8 @@ static rtype check_call(st_rules *R, rexpr *e, int ctx, st_status *rc)
                      "unknown function '%s' (did you mean '%s'?)", e->text, hint);
         else
             st_rdiag(R, ST_SEV_ERROR, ST_ERR_RULE, &e->span,
-                     "unknown function '%s' (known: ceil, floor, round, min, max, abs, year)", e->text);
+                     "unknown function '%s' (known: ceil, floor, round, min, max, abs, year, "
+                     "attribute)", e->text);
         return TY_ERR;
     }
     e->index = fn;

@@ -429,6 +429,19 @@ static void test_floating_point_trap(void **state)
     fx_close(&x);
 }
 
+/* attribute("...") reads attributes whose names are not plain names. */
+static void test_attribute_call(void **state)
+{
+    (void)state;
+    fx x;
+    const char *fields[] = {"roof height", NULL};
+    fx_open(&x, "schema\n  field h number\nend\nderive h\n  from attribute(\"roof height\") * 2\nend\n",
+            fields);
+    expect_one(&x, "1.5 m", "h", "3", ST_PROV_DERIVED, "t.rules:5");
+    expect_one(&x, NULL, "h", NULL, ST_PROV_UNKNOWN, "t.rules:2");
+    fx_close(&x);
+}
+
 /* ---- checks and unknowns -------------------------------------------------- */
 
 static void test_checks_and_unknowns(void **state)
@@ -764,6 +777,7 @@ int main(void)
         cmocka_unit_test(test_derive_values),
         cmocka_unit_test(test_precedence),
         cmocka_unit_test(test_floating_point_trap),
+        cmocka_unit_test(test_attribute_call),
         cmocka_unit_test(test_checks_and_unknowns),
         cmocka_unit_test(test_defaults_when),
         cmocka_unit_test(test_hostile_regex),
