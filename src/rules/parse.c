@@ -386,7 +386,7 @@ static rexpr *parse_primary(rparser *P)
             return NULL;
         e->num = t.num;
         double f;
-        if (P->tok.type == T_PERCENT && P->tok.span.off == t.span.off + t.span.len) {
+        if (P->tok.type == T_PERCENT) {
             e->num /= 100.0;
             e->span = join(&t.span, &P->tok.span);
             advance(P);
