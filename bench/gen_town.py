@@ -5,7 +5,8 @@ on the invented island of Tamberune, for stocktake's demo and benchmarks.
 
 Input:   options only. --seed S --n N --districts K --out DIR
          [--format geojson|geojsonl] [--no-cadastre] [--no-truth];
-         or --table MANIFEST to print the fault table of an earlier run.
+         or --table MANIFEST [--table-kind faults|districts|facts] to print
+         one of samples/README.md's tables from an earlier run's manifest.
 Output:  in DIR (names fixed, extension by --format):
            buildings_osm.EXT       crowd-mapped footprints, OpenStreetMap-style
                                    tags, exactly N features, faults at the
@@ -1581,7 +1582,8 @@ def generate(args):
         manifest["layers"]["buildings_cadastre"] = {
             "features": cad.count,
             "faults": sorted_counts(counts["cadastre"].c, CADASTRE_FAULTS),
-            "districts": [p["key"] for p in town.profs if p["cadastre"]]}
+            "districts": sorted(p["key"] for p in town.profs
+                               if p["cadastre"])}
         manifest["cross_layer"] = dict(sorted(cross.c.items()))
     if k <= 50:
         manifest["district_table"] = [
@@ -1645,26 +1647,71 @@ def write_reference(town, rng, true_by_d, path):
     return refs
 
 
-def print_table(manifest_path):
-    """The README's fault table, from a manifest."""
+def table_faults(m):
+    osm = m["layers"]["buildings_osm"]
+    cad = m["layers"].get("buildings_cadastre")
+    crates = dict(CADASTRE_FAULTS)
+    out = ["| fault | rate (osm) | buildings_osm | rate (cadastre) | "
+           "buildings_cadastre |", "|---|---:|---:|---:|---:|"]
+    for name, rate in CROWD_FAULTS:
+        cr = "%.1f %%" % (crates[name] * 100) if name in crates else "-"
+        cc = str(cad["faults"][name]) if cad and name in crates else "-"
+        out.append("| `%s` %s | %.2f %% | %d | %s | %s |" % (
+            name, FAULT_TEXT[name], rate * 100, osm["faults"][name], cr, cc))
+    out.append("| **features in the layer** | | **%d** | | **%s** |" % (
+        osm["features"], cad["features"] if cad else "-"))
+    return out
+
+
+def table_districts(m):
+    out = ["| district_id | name | region_id | true buildings | "
+           "buildings_osm features | reference count | osm with "
+           "building:levels | notes |",
+           "|---|---|---|---:|---:|---:|---:|---|"]
+    for r in m["district_table"]:
+        notes = []
+        if r["undermapped"]:
+            notes.append("under-mapped")
+        if r["cadastre"]:
+            notes.append("in the cadastre")
+        share = 100.0 * r["osm_levels_tagged"] / max(1, r["osm_features"])
+        out.append("| %s | %s | %s | %d | %d | %d | %d (%.0f %%) | %s |" % (
+            r["district_id"], r["name"], r["region_id"], r["true_buildings"],
+            r["osm_features"], r["reference"], r["osm_levels_tagged"], share,
+            ", ".join(notes)))
+    return out
+
+
+def table_facts(m):
+    osm = m["layers"]["buildings_osm"]
+    g, t = osm["geometry"], m["terraces"]
+    rows = [
+        ("true buildings in the town", m["true_buildings"]),
+        ("terraced rows (houses sharing walls; not overlaps)", t["rows"]),
+        ("houses in terraced rows", t["houses"]),
+        ("shared walls", t["shared_walls"]),
+        ("buildings_osm: clockwise exterior rings (allowed; RFC 7946 "
+         "prefers counter-clockwise)", g.get("clockwise_shell", 0)),
+        ("buildings_osm: MultiPolygon features", g.get("multipolygon", 0)),
+        ("... of which single-part", g.get("single_part_multipolygon", 0)),
+    ]
+    for k, v in osm["levels_forms"].items():
+        rows.append(("buildings_osm: building:levels written as `%s`" % k, v))
+    for k, v in osm["height_forms"].items():
+        rows.append(("buildings_osm: height written as `%s`" % k, v))
+    for k, v in m.get("cross_layer", {}).items():
+        rows.append(("cadastre districts: %s" % k.replace("_", " "), v))
+    return ["| fact | count |", "|---|---:|"] + \
+        ["| %s | %d |" % (k, v) for k, v in rows]
+
+
+def print_table(manifest_path, kind):
+    """One of the README's tables, from a manifest."""
     with open(manifest_path, encoding="utf-8") as f:
         m = json.load(f)
-    lay = m["layers"]
-    osm = lay["buildings_osm"]
-    cad = lay.get("buildings_cadastre")
-    rates = dict(CROWD_FAULTS)
-    crates = dict(CADASTRE_FAULTS)
-    print("| fault | rate (osm) | buildings_osm | rate (cadastre) | "
-          "buildings_cadastre |")
-    print("|---|---:|---:|---:|---:|")
-    for name, _ in CROWD_FAULTS:
-        c = osm["faults"].get(name, 0)
-        cr = "%.1f %%" % (crates[name] * 100) if name in crates else "-"
-        cc = str(cad["faults"].get(name, 0)) if cad and name in crates else "-"
-        print("| %s | %.2f %% | %d | %s | %s |" % (
-            FAULT_TEXT[name], rates[name] * 100, c, cr, cc))
-    print("| **features in the layer** | | **%d** | | **%s** |" % (
-        osm["features"], cad["features"] if cad else "-"))
+    lines = {"faults": table_faults, "districts": table_districts,
+             "facts": table_facts}[kind](m)
+    print("\n".join(lines))
 
 
 def parse_args(argv):
@@ -1684,7 +1731,9 @@ def parse_args(argv):
     ap.add_argument("--no-truth", action="store_true",
                     help="skip buildings_truth.csv (benchmarks)")
     ap.add_argument("--table", metavar="MANIFEST",
-                    help="print the fault table of MANIFEST and exit")
+                    help="print a README table made from MANIFEST and exit")
+    ap.add_argument("--table-kind", choices=("faults", "districts", "facts"),
+                    default="faults")
     args = ap.parse_args(argv)
     if args.table:
         return args
@@ -1702,7 +1751,7 @@ def parse_args(argv):
 def main(argv):
     args = parse_args(argv)
     if args.table:
-        print_table(args.table)
+        print_table(args.table, args.table_kind)
         return 0
     try:
         m = generate(args)
