@@ -33,7 +33,8 @@ typedef enum {
     ST_GEOM_MULTILINESTRING,
     ST_GEOM_MULTIPOLYGON,
     ST_GEOM_COLLECTION,  /* only its polygonal members are kept (as parts) */
-    ST_GEOM_OTHER        /* curves, surfaces, TINs...: nothing is kept */
+    ST_GEOM_OTHER        /* curves, surfaces, TINs...: nothing is kept; as a
+                            layer's declared type: any geometry ("GEOMETRY") */
 } st_geom_type;
 
 /* Upper-case OGC name ("POLYGON"), "NULL" for ST_GEOM_NULL. */
@@ -135,6 +136,9 @@ typedef struct st_feature {
     char *source_id;       /* the layer's own id (GeoJSON id, gpkg fid,
                               shapefile record number), owned, or NULL */
     st_geom geom;          /* lon/lat WGS 84 once the reader returns it */
+    st_geom source_geom;   /* the geometry as read, kept only when a stage
+                              replaced 'geom' (footprint repair); type
+                              ST_GEOM_NULL otherwise. Owned. */
     char **values;         /* nvalues source attributes, owned, NULL = missing;
                               values[i] belongs to field i of its layer */
     uint32_t nvalues;

@@ -61,6 +61,10 @@ const char *st_reader_format_name(const st_reader *r);
 const char *st_reader_layer_name(const st_reader *r);
 /* Human-readable source CRS ("EPSG:32643", "OGC:CRS84", ...), or NULL. */
 const char *st_reader_crs(const st_reader *r);
+/* The source CRS definition in force (the --crs override, else as found in
+** the file: WKT, "EPSG:n", ...), borrowed, or NULL. 'inspect' uses it to
+** give a lon/lat extent for a layer it reads in its own CRS. */
+const char *st_reader_crs_def(const st_reader *r);
 /* Number of features if the format knows it before reading, else -1. */
 long long st_reader_count_hint(const st_reader *r);
 /* Bytes consumed so far and total, for a progress display (0 if unknown). */
@@ -123,7 +127,9 @@ const char *st_crs_name(const st_crs_transform *t);
 void st_crs_free(st_crs_transform *t);
 /* 1 if 'def' denotes lon/lat (or lat/lon) WGS 84 / CRS84. */
 int st_crs_is_wgs84(const char *def);
-/* Returns owned short name ("EPSG:4326") of a CRS definition, or NULL. */
+/* Returns owned short name ("EPSG:4326") of a CRS definition: its own
+** identifier, else an EPSG code PROJ identifies with confidence >= 70, else
+** the CRS's name. NULL when PROJ cannot read 'def' (or on no memory). */
 char *st_crs_identify(const char *def);
 
 #endif

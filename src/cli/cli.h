@@ -49,6 +49,18 @@ void st_progress_update(st_progress *p, long long done, long long total,
                         long long features);
 void st_progress_end(st_progress *p);
 
+/*
+** Interrupts: after st_cli_catch_interrupts(), SIGINT, SIGTERM and SIGHUP
+** only set a flag that long loops poll with st_cli_interrupted(), so a
+** command can close its writer without commit (removing the temporary
+** output) and then st_cli_reraise() ends the process the way the signal
+** would have. The flag is the CLI's one mutable static: a signal handler
+** can do nothing else safely.
+*/
+void st_cli_catch_interrupts(void);
+int st_cli_interrupted(void);          /* the signal number, or 0 */
+void st_cli_reraise(void);             /* no-op without a signal */
+
 /* Report a usage error for subcommand 'cmd' on stderr; returns ST_EXIT_ERROR. */
 int st_cli_usage_error(const char *cmd, const char *fmt, ...) ST_PRINTF(2, 3);
 

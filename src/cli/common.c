@@ -2,6 +2,7 @@
 ** cli/common.c -- what the subcommands share: diagnostics on stderr,
 ** a progress line, usage errors.
 */
+#include <signal.h>
 #include <stdarg.h>
 #include <string.h>
 #include <time.h>
@@ -25,6 +26,44 @@ size_t st_cli_print_diags(const st_diags *d)
         fprintf(stderr, "stocktake: %zu more diagnostics not shown\n", d->dropped);
     st_buf_free(&b);
     return d->errors;
+}
+
+static volatile sig_atomic_t caught_signal;
+
+static void on_signal(int sig)
+{
+    caught_signal = sig;
+}
+
+void st_cli_catch_interrupts(void)
+{
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigemptyset(&sa.sa_mask);
+    static const int sigs[] = {SIGINT, SIGTERM, SIGHUP};
+    for (size_t i = 0; i < sizeof sigs / sizeof sigs[0]; i++) {
+        struct sigaction old;
+        /* A signal ignored at start (nohup, a background job of a
+        ** non-interactive shell) stays ignored, as the caller asked. */
+        if (sigaction(sigs[i], NULL, &old) == 0 && old.sa_handler == SIG_IGN)
+            continue;
+        sigaction(sigs[i], &sa, NULL);
+    }
+}
+
+int st_cli_interrupted(void)
+{
+    return caught_signal;
+}
+
+void st_cli_reraise(void)
+{
+    int sig = caught_signal;
+    if (!sig)
+        return;
+    signal(sig, SIG_DFL);
+    raise(sig);
 }
 
 int st_cli_usage_error(const char *cmd, const char *fmt, ...)

@@ -182,6 +182,11 @@ int st_reader_schema_fixed(const st_reader *r) { return r->schema_fixed; }
 const char *st_reader_format_name(const st_reader *r) { return r->fmt->name; }
 const char *st_reader_layer_name(const st_reader *r) { return r->layer_name; }
 const char *st_reader_crs(const st_reader *r) { return r->crs_name; }
+
+const char *st_reader_crs_def(const st_reader *r)
+{
+    return r->opt.crs_override ? r->opt.crs_override : r->crs_def;
+}
 long long st_reader_count_hint(const st_reader *r) { return r->count_hint; }
 const char *st_reader_path(const st_reader *r) { return r->path; }
 
