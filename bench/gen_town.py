@@ -4,7 +4,8 @@ bench/gen_town.py -- seeded generator of Quellamar, an INVENTED harbour town
 on the invented island of Tamberune, for stocktake's demo and benchmarks.
 
 Input:   options only. --seed S --n N --districts K --out DIR
-         [--format geojson|geojsonl] [--no-cadastre] [--no-truth];
+         [--format geojson|geojsonl] [--no-cadastre] [--no-truth]
+         [--omit FAULT,...];
          or --table MANIFEST [--table-kind faults|districts|facts] to print
          one of samples/README.md's tables from an earlier run's manifest.
 Output:  in DIR (names fixed, extension by --format):
@@ -998,13 +999,16 @@ def edges_cross(pts):
     return False
 
 
-def pick_fault(rng, table, allow_extra):
+def pick_fault(rng, table, allow_extra, omit=()):
+    """A fault drawn at the table's rates, or None. An omitted fault (and an
+    extra one when not allowed) leaves its building clean; the draw is made
+    all the same, so omitting one fault changes nothing else."""
     x = rng.u()
     acc = 0.0
     for name, rate in table:
         acc += rate
         if x < acc:
-            if name in EXTRA_FAULTS and not allow_extra:
+            if name in omit or (name in EXTRA_FAULTS and not allow_extra):
                 return None
             return name
     return None
@@ -1381,7 +1385,7 @@ def generate(args):
     def emit_crowd(b, prof, d):
         """Write building b to the crowd layer; returns its feature index."""
         remaining = state["remaining"]
-        fault = pick_fault(rng, CROWD_FAULTS, remaining >= 2)
+        fault = pick_fault(rng, CROWD_FAULTS, remaining >= 2, args.omit)
         main, extra = apply_fault(rng, fault, b)
         cw = rng.chance(0.35)
         main.cw = cw
@@ -1446,7 +1450,7 @@ def generate(args):
         return src
 
     def emit_cadastre(b, prof, how, shift):
-        fault = pick_fault(rng, CADASTRE_FAULTS, True)
+        fault = pick_fault(rng, CADASTRE_FAULTS, True, args.omit)
         src = cadastre_drawing(b, how, shift)
         cross.add("cadastre_drawn_" + how)
         main, extra = apply_fault(rng, fault, src)
@@ -1558,6 +1562,7 @@ def generate(args):
         "n": args.n,
         "districts": k,
         "format": ext,
+        "omitted_faults": sorted(args.omit),
         "town": {"name": TOWN, "island": ISLAND, "invented": True,
                  "centre_lon": CENTRE_LON, "centre_lat": CENTRE_LAT,
                  "width_m": round(town.width, 1),
@@ -1730,6 +1735,8 @@ def parse_args(argv):
                     help="skip the cadastre layer (benchmarks)")
     ap.add_argument("--no-truth", action="store_true",
                     help="skip buildings_truth.csv (benchmarks)")
+    ap.add_argument("--omit", metavar="FAULT,...", default="",
+                    help="faults never to inject (names as in faults.csv)")
     ap.add_argument("--table", metavar="MANIFEST",
                     help="print a README table made from MANIFEST and exit")
     ap.add_argument("--table-kind", choices=("faults", "districts", "facts"),
@@ -1745,6 +1752,11 @@ def parse_args(argv):
         ap.error("--districts must be between 2 and 100,000")
     if args.seed < 0:
         ap.error("--seed must be 0 or more")
+    known = {name for name, _ in CROWD_FAULTS}
+    args.omit = tuple(sorted({f for f in args.omit.split(",") if f}))
+    for f in args.omit:
+        if f not in known:
+            ap.error("--omit: unknown fault '%s'" % f)
     return args
 
 
