@@ -542,7 +542,9 @@ static int parse_real(const char *v, double *out)
 
 /* Bind value v to parameter p by the column's type. A text that does not
 ** parse as the type is stored as text all the same: SQLite keeps it, and
-** losing a source value would be worse than a typed column holding text. */
+** losing a source value would be worse than a typed column holding text.
+** (SQLite's column affinity may still turn a number written with spaces
+** around it into a number.) */
 static void bind_value(sqlite3_stmt *s, int p, st_field_type type, const char *v)
 {
     long long n;

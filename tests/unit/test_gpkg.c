@@ -361,6 +361,13 @@ static void test_blob_count_beyond_size(void **state)
     unsigned char multi[] = {1, 6, 0, 0, 0, 1, 0, 0, 0, 1, 2, 0, 0, 0, 0, 0, 0, 0};
     n = make_blob(blob, 1, 0, 0, NULL, multi, sizeof multi);
     expect_format_error(gx, blob, n, "holds only type 3");
+    /* The size limit is checked before a byte is read. */
+    st_geom back;
+    st_geom_init(&back);
+    char err[256];
+    assert_int_equal(st_gpkg_blob_decode(gx, blob, ST_GPKG_MAX_BLOB + 1, &back, err, sizeof err),
+                     ST_ERR_LIMIT);
+    assert_non_null(strstr(err, "exceeds the limit"));
     st_geos_free(gx);
 }
 
@@ -1065,6 +1072,8 @@ static void test_sample_rtree(void **state)
 static void test_sample_read_back(void **state)
 {
     fixture *fx = *state;
+    char *before = sha256(fx->sample);
+    int entries = count_entries(fx->dir);
     char spec[256];
     snprintf(spec, sizeof spec, "%s:buildings", fx->sample);
     st_field_type types[NFIELDS];
@@ -1120,6 +1129,12 @@ static void test_sample_read_back(void **state)
     st_reader_close(r);
     assert_int_equal(d.count, 0);
     st_diags_free(&d);
+    /* The input is untouched, and nothing appeared beside it. */
+    char *after = sha256(fx->sample);
+    assert_string_equal(before, after);
+    assert_int_equal(count_entries(fx->dir), entries);
+    st_free(before);
+    st_free(after);
 }
 
 /* GDAL and our reader agree on the districts layer, row for row. */
@@ -1229,6 +1244,180 @@ static void test_layer_choice(void **state)
     assert_int_equal(st_reader_count_hint(r), 1);
     st_reader_close(r);
     st_diags_free(&d);
+}
+
+/* A copy of the sample changed with plain SQL. The R-tree triggers are
+** dropped first: they call ST_* functions that only GDAL or our writer
+** provide, so SQLite could not run an UPDATE that fires them. */
+static void changed_copy(const fixture *fx, const char *name, const char *sql, char *path,
+                         size_t n, sqlite3 **keep_open)
+{
+    snprintf(path, n, "%s/%s", fx->dir, name);
+    copy_prefix(fx->sample, path, -1);
+    sqlite3 *db;
+    assert_int_equal(sqlite3_open(path, &db), SQLITE_OK);
+    char *err = NULL;
+    int rc = sqlite3_exec(db,
+        "DROP TRIGGER rtree_buildings_geom_insert; DROP TRIGGER rtree_buildings_geom_update1;"
+        "DROP TRIGGER rtree_buildings_geom_update2; DROP TRIGGER rtree_buildings_geom_update3;"
+        "DROP TRIGGER rtree_buildings_geom_update4; DROP TRIGGER rtree_buildings_geom_delete;",
+        NULL, NULL, &err);
+    if (rc == SQLITE_OK)
+        rc = sqlite3_exec(db, sql, NULL, NULL, &err);
+    if (rc != SQLITE_OK)
+        fail_msg("%s: %s", sql, err);
+    if (keep_open)
+        *keep_open = db;
+    else
+        sqlite3_close(db);
+}
+
+/* Declared types (GeoPackage 1.2 Table 1) to field types and values. */
+static void test_column_types_and_values(void **state)
+{
+    fixture *fx = *state;
+    char path[256];
+    changed_copy(fx, "types.gpkg",
+                 "ALTER TABLE buildings ADD COLUMN photo BLOB;"
+                 "ALTER TABLE buildings ADD COLUMN seen DATETIME;"
+                 "ALTER TABLE buildings ADD COLUMN small TINYINT;"
+                 "ALTER TABLE buildings ADD COLUMN ratio DOUBLE;"
+                 "ALTER TABLE buildings ADD COLUMN flag BOOLEAN;"
+                 "ALTER TABLE buildings ADD COLUMN label TEXT(12);"
+                 "UPDATE buildings SET photo = x'00ff10', seen = '2024-05-01T10:00:00.000Z',"
+                 " small = 7, ratio = 0.1 + 0.2, flag = 2, label = CAST(x'41ff42' AS TEXT)"
+                 " WHERE fid = 1;"
+                 "UPDATE gpkg_spatial_ref_sys SET organization = 'epsg' WHERE srs_id = 4326;",
+                 path, sizeof path, NULL);
+    char spec[300];
+    snprintf(spec, sizeof spec, "%s:buildings", path);
+    st_diags d;
+    st_diags_init(&d);
+    st_reader *r;
+    assert_int_equal(st_reader_open(spec, NULL, &d, &r), ST_OK);
+    assert_string_equal(r->crs_def, "EPSG:4326");     /* organisation in any case */
+    const st_fields *fl = st_reader_fields(r);
+    assert_int_equal(fl->count, NFIELDS + 6);
+    static const st_field_type want[] = {ST_FIELD_TEXT, ST_FIELD_TEXT, ST_FIELD_INTEGER,
+                                         ST_FIELD_REAL, ST_FIELD_BOOLEAN, ST_FIELD_TEXT};
+    for (int i = 0; i < 6; i++)
+        assert_int_equal(fl->items[NFIELDS + i].type, want[i]);
+    assert_int_equal(fl->items[NFIELDS + 5].width, 12);
+    st_feature *f;
+    assert_int_equal(st_reader_next(r, &f), ST_OK);
+    assert_string_equal(st_feature_value(f, NFIELDS + 0), "00ff10");        /* hex */
+    assert_string_equal(st_feature_value(f, NFIELDS + 1), "2024-05-01T10:00:00.000Z");
+    assert_string_equal(st_feature_value(f, NFIELDS + 2), "7");
+    assert_string_equal(st_feature_value(f, NFIELDS + 3), "0.30000000000000004");
+    assert_string_equal(st_feature_value(f, NFIELDS + 4), "true");
+    assert_string_equal(st_feature_value(f, NFIELDS + 5), "A\xEF\xBF\xBD" "B");  /* U+FFFD */
+    st_feature_free(f);
+    assert_int_equal(st_reader_next(r, &f), ST_OK);
+    assert_null(st_feature_value(f, NFIELDS + 0));
+    st_feature_free(f);
+    st_reader_close(r);
+    assert_int_equal(d.count, 0);
+    st_diags_free(&d);
+}
+
+/* The CRS: EPSG code, else the definition, else none (srs_id 0, unknown). */
+static void test_crs_from_spatial_ref_sys(void **state)
+{
+    fixture *fx = *state;
+    char path[256], spec[300];
+    changed_copy(fx, "crs1.gpkg", "UPDATE gpkg_spatial_ref_sys SET organization = 'OTHER' "
+                                  "WHERE srs_id = 4326;", path, sizeof path, NULL);
+    snprintf(spec, sizeof spec, "%s:buildings", path);
+    st_diags d;
+    st_diags_init(&d);
+    st_read_options opt = ST_READ_OPTIONS_DEFAULT;
+    opt.keep_source_crs = 1;
+    st_reader *r;
+    assert_int_equal(st_reader_open(spec, &opt, &d, &r), ST_OK);
+    assert_non_null(r->crs_def);
+    assert_memory_equal(r->crs_def, "GEOGCS[\"WGS 84\"", 15);
+    st_reader_close(r);
+
+    changed_copy(fx, "crs2.gpkg", "UPDATE gpkg_geometry_columns SET srs_id = 0;",
+                 path, sizeof path, NULL);
+    snprintf(spec, sizeof spec, "%s:buildings", path);
+    /* No CRS: the generic reader asks for one ... */
+    assert_int_equal(st_reader_open(spec, NULL, &d, &r), ST_ERR_PROJ);
+    assert_non_null(strstr(d.items[0].message, "no coordinate reference system"));
+    /* ... which --crs gives. */
+    opt.crs_override = "EPSG:4326";
+    assert_int_equal(st_reader_open(spec, &opt, &d, &r), ST_OK);
+    assert_null(r->crs_def);
+    st_reader_close(r);
+
+    changed_copy(fx, "crs3.gpkg", "UPDATE gpkg_geometry_columns SET srs_id = 999;",
+                 path, sizeof path, NULL);
+    snprintf(spec, sizeof spec, "%s:buildings", path);
+    assert_int_equal(st_reader_open(spec, &opt, &d, &r), ST_OK);
+    assert_null(r->crs_def);
+    assert_int_equal(d.items[d.count - 1].severity, ST_SEV_WARNING);
+    assert_non_null(strstr(d.items[d.count - 1].message,
+                           "srs_id 999 of layer 'buildings' has no row in gpkg_spatial_ref_sys"));
+    st_reader_close(r);
+    st_diags_free(&d);
+}
+
+/* A blob that does not decode stops the read at its feature, naming the fid. */
+static void test_bad_blob_names_feature_and_fid(void **state)
+{
+    fixture *fx = *state;
+    char path[256], spec[300];
+    /* flags 0x0b: little-endian, envelope code 5 (invalid). */
+    changed_copy(fx, "badblob.gpkg", "UPDATE buildings SET geom = x'4750000BE6100000"
+                 "000000000000000000000000000000000000000000' WHERE fid = 2;",
+                 path, sizeof path, NULL);
+    snprintf(spec, sizeof spec, "%s:buildings", path);
+    st_diags d;
+    st_diags_init(&d);
+    st_reader *r;
+    assert_int_equal(st_reader_open(spec, NULL, &d, &r), ST_OK);
+    st_feature *f;
+    assert_int_equal(st_reader_next(r, &f), ST_OK);
+    st_feature_free(f);
+    assert_int_equal(st_reader_next(r, &f), ST_ERR_FORMAT);
+    assert_null(f);
+    assert_int_equal(d.count, 1);
+    assert_string_equal(d.items[0].file, path);
+    assert_int_equal(d.items[0].feature, 1);
+    assert_string_equal(d.items[0].message,
+                        "fid 2: bad geometry blob: invalid envelope code 5 (0 to 4 allowed)");
+    st_reader_close(r);
+    st_diags_free(&d);
+}
+
+/* A GeoPackage another connection writes in WAL mode: the rows it has
+** committed are read (mode=ro instead of immutable, see read_uri). */
+static void test_reads_committed_wal(void **state)
+{
+    fixture *fx = *state;
+    char path[256], spec[300], wal[300];
+    sqlite3 *db;
+    changed_copy(fx, "wal.gpkg", "PRAGMA journal_mode = WAL; PRAGMA wal_autocheckpoint = 0;"
+                                 "DELETE FROM buildings WHERE fid = 4;",
+                 path, sizeof path, &db);
+    snprintf(wal, sizeof wal, "%s-wal", path);
+    assert_true(have_file(wal));
+    snprintf(spec, sizeof spec, "%s:buildings", path);
+    st_diags d;
+    st_diags_init(&d);
+    st_reader *r;
+    assert_int_equal(st_reader_open(spec, NULL, &d, &r), ST_OK);
+    assert_int_equal(st_reader_count_hint(r), 3);
+    st_feature *f;
+    int n = 0;
+    while (st_reader_next(r, &f) == ST_OK && f) {
+        n++;
+        st_feature_free(f);
+    }
+    assert_int_equal(n, 3);
+    st_reader_close(r);
+    st_diags_free(&d);
+    sqlite3_close(db);
 }
 
 /* ---- the real extract ------------------------------------------------------- */
@@ -1348,32 +1537,56 @@ static void test_write_type_fitting(void **state)
     st_diags_init(&d);
     st_writer *w;
     assert_int_equal(st_writer_open(path, &d, &w), ST_OK);
-    st_fields none;
-    st_fields_init(&none);
-    assert_int_equal(st_writer_begin_layer(w, "p", &none, ST_GEOM_POLYGON), ST_OK);
+    st_fields fl;
+    static const char *const names[] = {"levels", "height"};
+    static const st_field_type types[] = {ST_FIELD_INTEGER, ST_FIELD_REAL};
+    fields_of(&fl, 2, names, types);
+    assert_int_equal(st_writer_begin_layer(w, "p", &fl, ST_GEOM_POLYGON), ST_OK);
     st_feature *f = st_feature_new();
     multipolygon(&f->geom);
     assert_int_equal(st_writer_write(w, f), ST_ERR_USAGE);
     st_geom_clear(&f->geom);
     polygon_with_hole(&f->geom);
     f->geom.type = ST_GEOM_MULTIPOLYGON;
+    /* Texts that are not numbers stay texts in numeric columns. */
+    assert_int_equal(st_feature_set_value(f, 0, "about 3", 7), ST_OK);
+    assert_int_equal(st_feature_set_value(f, 1, "nan", 3), ST_OK);
     assert_int_equal(st_writer_write(w, f), ST_OK);
     st_geom_clear(&f->geom);
     f->geom.type = ST_GEOM_POLYGON;   /* empty */
+    assert_int_equal(st_feature_set_value(f, 0, "4", 1), ST_OK);
+    assert_int_equal(st_feature_set_value(f, 1, " 2.5", 4), ST_OK);
     assert_int_equal(st_writer_write(w, f), ST_OK);
     assert_int_equal(st_writer_commit(w), ST_OK);
     st_writer_close(w);
     st_feature_free(f);
+
+    sqlite3 *db;
+    assert_int_equal(sqlite3_open_v2(path, &db, SQLITE_OPEN_READONLY, NULL), SQLITE_OK);
+    sqlite3_stmt *s;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT typeof(levels) || ' ' || typeof(height) "
+                                            "FROM p ORDER BY fid", -1, &s, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_step(s), SQLITE_ROW);
+    assert_string_equal(sqlite3_column_text(s, 0), "text text");
+    assert_int_equal(sqlite3_step(s), SQLITE_ROW);
+    /* SQLite's REAL affinity itself turns " 2.5" into a number. */
+    assert_string_equal(sqlite3_column_text(s, 0), "integer real");
+    sqlite3_finalize(s);
+    sqlite3_close(db);
 
     st_reader *r;
     assert_int_equal(st_reader_open(path, NULL, &d, &r), ST_OK);
     assert_int_equal(st_reader_next(r, &f), ST_OK);
     assert_int_equal(f->geom.type, ST_GEOM_POLYGON);
     assert_int_equal(f->geom.nrings, 2);
+    assert_string_equal(st_feature_value(f, 0), "about 3");
+    assert_string_equal(st_feature_value(f, 1), "nan");
     st_feature_free(f);
     assert_int_equal(st_reader_next(r, &f), ST_OK);
     assert_int_equal(f->geom.type, ST_GEOM_POLYGON);
     assert_true(st_geom_is_empty(&f->geom));
+    assert_string_equal(st_feature_value(f, 0), "4");
+    assert_string_equal(st_feature_value(f, 1), "2.5");
     st_feature_free(f);
     st_reader_close(r);
     if (have_gdal_python()) {
@@ -1387,7 +1600,7 @@ static void test_write_type_fitting(void **state)
     }
     assert_int_equal(d.count, 1);
     st_diags_free(&d);
-    st_fields_free(&none);
+    st_fields_free(&fl);
 }
 
 /* ---- allocation failures ----------------------------------------------------- */
@@ -1476,6 +1689,10 @@ int main(void)
         cmocka_unit_test(test_sample_districts_agree_with_gdal),
         cmocka_unit_test(test_not_a_geopackage),
         cmocka_unit_test(test_layer_choice),
+        cmocka_unit_test(test_column_types_and_values),
+        cmocka_unit_test(test_crs_from_spatial_ref_sys),
+        cmocka_unit_test(test_bad_blob_names_feature_and_fid),
+        cmocka_unit_test(test_reads_committed_wal),
         cmocka_unit_test(test_real_bengaluru),
         cmocka_unit_test(test_close_without_commit_leaves_nothing),
         cmocka_unit_test(test_write_type_fitting),
