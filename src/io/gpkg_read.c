@@ -260,12 +260,16 @@ static st_status no_such_layer(st_reader *r, long long nlayers, const char *name
     if (rc != ST_OK)
         return rc;
     sqlite3_bind_text(s, 1, r->layer_request, -1, SQLITE_STATIC);
-    if (sqlite3_step(s) == SQLITE_ROW) {
-        const char *type = (const char *)sqlite3_column_text(s, 0);
+    const char *type = sqlite3_step(s) == SQLITE_ROW
+                           ? (const char *)sqlite3_column_text(s, 0) : NULL;
+    if (type && strcasecmp(type, "features") == 0) {
+        rc = st_reader_fail(r, ST_ERR_FORMAT, -1, "layer '%s' has no row in "
+                            "gpkg_geometry_columns", r->layer_request);
+    } else if (type) {
         rc = st_reader_fail(r, ST_ERR_USAGE, -1,
                             "layer '%s' is a '%s' table, not a feature layer; "
-                            "feature layers: %s", r->layer_request,
-                            type ? type : "?", nlayers ? names : "none");
+                            "feature layers: %s", r->layer_request, type,
+                            nlayers ? names : "none");
     } else {
         rc = st_reader_fail(r, ST_ERR_USAGE, -1, "no layer '%s'; feature layers: %s",
                             r->layer_request, nlayers ? names : "none");

@@ -1520,6 +1520,12 @@ static void test_close_without_commit_leaves_nothing(void **state)
     assert_non_null(strstr(d.items[0].message, "reserved"));
     assert_non_null(strstr(d.items[1].message, "declared LINESTRING; feature 0 is a POLYGON"));
     assert_non_null(strstr(d.items[2].message, "already in the file"));
+    /* A folder that does not exist: an I/O error naming the output. */
+    snprintf(path, sizeof path, "%s/no/such/dir/out.gpkg", fx->dir);
+    w = (st_writer *)&d;
+    assert_int_equal(st_writer_open(path, &d, &w), ST_ERR_IO);
+    assert_null(w);
+    assert_string_equal(d.items[3].file, path);
     st_feature_free(f);
     st_fields_free(&fl);
     st_diags_free(&d);
