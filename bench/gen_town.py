@@ -23,9 +23,9 @@ Output:  in DIR (names fixed, extension by --format):
            buildings_truth.csv     one row per true building (not --no-truth)
            manifest.json           what was generated, with exact counts
 Errors:  bad options: message on stderr, exit 2. I/O errors: exit 1.
-Limits:  features are written as they are made; memory grows with the
-         buildings of one district (about N/K) and with the block lattice
-         (about N/8 small tuples), not with the output files.
+Limits:  features are written as they are made, one block (at most a few
+         dozen buildings) at a time; memory grows only with the block
+         lattice (about N/8 small tuples): about 30 MB for N = 1,000,000.
 
 Determinism: one random.Random(seed) drives everything, and only its
 random() method is used (its output is fixed across Python 3 versions);
