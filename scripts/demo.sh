@@ -20,7 +20,7 @@ cd "$(dirname "$0")/.." || exit 2
 ST=${STOCKTAKE:-build/stocktake}
 S=samples
 OUT=${DEMO_OUT:-out/demo}
-DEMO_RULES=${DEMO_RULES:-rules/quellamar.rules}   # the demo's rule pack
+DEMO_RULES=${DEMO_RULES:-rules/demo.rules}   # the demo's pack (rules/README.md)
 
 [ -x "$ST" ] || { echo "demo: no stocktake binary at $ST (make first)" >&2; exit 2; }
 [ -f "$S/manifest.json" ] || { echo "demo: $S/ is missing" >&2; exit 2; }
