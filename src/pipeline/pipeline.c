@@ -340,9 +340,7 @@ static st_feature **select_features(run_state *s, int kept, size_t *n)
 static st_status write_run_info(run_state *s, st_inventory *inv)
 {
     char when[32];
-    time_t t = time(NULL);
-    struct tm tmv;
-    strftime(when, sizeof when, "%Y-%m-%dT%H:%M:%SZ", gmtime_r(&t, &tmv));
+    st_now_iso8601(when);
     size_t nl = s->res->nlayers;
     size_t n = 3 + nl;
     const char **kv = st_calloc(2 * n, sizeof *kv);
