@@ -91,7 +91,13 @@ static st_status read_layer(run_state *s, size_t l)
             break;
         f->layer = (uint32_t)l;
         f->bid = (uint64_t)s->nfeatures + 1;
-        rc = push_feature(s, f);
+        /* A feature without an id of its own (a GeoJSON feature with no
+        ** "id") is known by its 0-based position in the layer. */
+        if (!f->source_id &&
+            !(f->source_id = st_strdup_printf("%llu", (unsigned long long)f->index)))
+            rc = ST_ERR_NOMEM;
+        if (rc == ST_OK)
+            rc = push_feature(s, f);
         if (rc != ST_OK) {
             st_feature_free(f);
             break;
