@@ -136,6 +136,9 @@ typedef struct st_feature {
     char *source_id;       /* the layer's own id (GeoJSON id, gpkg fid,
                               shapefile record number), owned, or NULL */
     st_geom geom;          /* lon/lat WGS 84 once the reader returns it */
+    st_geom source_geom;   /* the geometry as read, kept only when a stage
+                              replaced 'geom' (footprint repair); type
+                              ST_GEOM_NULL otherwise. Owned. */
     char **values;         /* nvalues source attributes, owned, NULL = missing;
                               values[i] belongs to field i of its layer */
     uint32_t nvalues;

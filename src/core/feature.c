@@ -294,6 +294,7 @@ void st_feature_free(st_feature *f)
         return;
     st_free(f->source_id);
     st_geom_clear(&f->geom);
+    st_geom_clear(&f->source_geom);
     for (uint32_t i = 0; i < f->nvalues; i++)
         st_free(f->values[i]);
     st_free(f->values);

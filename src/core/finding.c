@@ -54,6 +54,8 @@ st_status st_findings_add(st_findings *f, uint64_t bid, const char *code,
 
 st_status st_findings_move(st_findings *dst, st_findings *src)
 {
+    if (src->count == 0)
+        return ST_OK;   /* also keeps memcpy away from NULL arrays */
     st_status rc = reserve(dst, src->count);
     if (rc != ST_OK)
         return rc;

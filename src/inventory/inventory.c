@@ -253,6 +253,9 @@ static st_status write_row(st_writer *w, const st_feature *f, char **row, uint32
     st_feature r;
     memset(&r, 0, sizeof r);
     r.geom = f->geom;              /* borrowed view, never freed here */
+    /* set_aside keeps the geometry as read, also when a stage replaced it */
+    if (!promote && f->source_geom.type != ST_GEOM_NULL)
+        r.geom = f->source_geom;
     /* buildings is declared MULTIPOLYGON: a polygon is written as a
     ** one-part multipolygon (same arrays, another type tag). */
     if (promote && r.geom.type == ST_GEOM_POLYGON)

@@ -1,0 +1,65 @@
+/*
+** stocktake/pipeline.h -- one whole run: read every input, check and repair
+** footprints, compare neighbours, (place, apply rules, audit), write the
+** inventory. The CLI's `run` fills st_run_options and prints the result.
+**
+** Nothing lost: every feature read ends up exactly once in `buildings` or
+** `set_aside`; st_run_result gives the balance per input layer.
+*/
+#ifndef STOCKTAKE_PIPELINE_H
+#define STOCKTAKE_PIPELINE_H
+
+#include <stdint.h>
+#include "stocktake/core.h"
+#include "stocktake/finding.h"
+
+typedef enum { ST_FAIL_ON_NONE = 0, ST_FAIL_ON_WARNING, ST_FAIL_ON_ERROR } st_fail_on;
+
+typedef struct st_run_options {
+    const char *const *inputs;   /* layer specs ("a.shp", "b.gpkg:layer") */
+    size_t ninputs;
+    const char *output;          /* OUT.gpkg | .geojson | .geojsonl | .csv | .shp */
+    const char *crs_override;    /* --crs for layers without a CRS, or NULL */
+    st_fail_on fail_on;          /* findings at or above this fail the gate */
+    const char *command_line;    /* recorded in run_info */
+    /* Progress: called now and then from the calling thread; may be NULL. */
+    void (*progress)(void *ud, const char *stage, long long done, long long total);
+    void *progress_ud;
+} st_run_options;
+
+typedef struct st_run_layer {
+    char *name;                  /* unique layer name in this run */
+    char *path;
+    char *format;
+    char *crs;
+    uint64_t read, kept, repaired, duplicate, rejected;
+} st_run_layer;
+
+typedef struct st_run_code_count {
+    const char *code;            /* static */
+    st_severity severity;
+    uint64_t count;
+} st_run_code_count;
+
+typedef struct st_run_result {
+    st_run_layer *layers;
+    size_t nlayers;
+    st_run_code_count *codes;    /* sorted by count, most frequent first */
+    size_t ncodes;
+    uint64_t findings[3];        /* by severity: note, warning, error */
+    int gate_failed;             /* 1: exit code 1 */
+    char *gate_reason;           /* owned, why the gate failed, or NULL */
+    char **outputs;              /* files written */
+    size_t noutputs;
+} st_run_result;
+
+/*
+** Run the whole job. 'opt' borrowed. On success *out is owned (free with
+** st_run_result_free) and every output is in place. On failure *out is
+** NULL, diagnostics say why, and nothing was written.
+*/
+st_status st_run_execute(const st_run_options *opt, st_diags *diags,
+                         st_run_result **out) ST_MUST_CHECK;
+void st_run_result_free(st_run_result *r);
+
+#endif

@@ -1,0 +1,444 @@
+/*
+** pipeline/pipeline.c -- one run, stage after stage, data flowing one way:
+** read -> footprint -> neighbours -> write.
+**
+** Input:  st_run_options (input layers, output path, gate threshold).
+** Output: the inventory (inventory.h) and an st_run_result with the
+**         balance per layer and the findings per code.
+** Errors: any input or output error stops the run before anything is
+**         renamed into place (diagnostics say where); findings never do.
+** Memory: every feature is held until the inventory is written, because
+**         the neighbour stage needs all layers together.
+*/
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include "stocktake/footprint.h"
+#include "stocktake/geomx.h"
+#include "stocktake/inventory.h"
+#include "stocktake/io.h"
+#include "stocktake/neighbours.h"
+#include "stocktake/pipeline.h"
+
+typedef struct run_state {
+    const st_run_options *opt;
+    st_diags *diags;
+    st_feature **features;       /* every feature read, in read order */
+    size_t nfeatures, capfeatures;
+    st_fields *fields;           /* per layer, copied from its reader */
+    st_run_result *res;
+    st_findings findings;
+    st_geos *gx;
+} run_state;
+
+static void progress(run_state *s, const char *stage, long long done, long long total)
+{
+    if (s->opt->progress)
+        s->opt->progress(s->opt->progress_ud, stage, done, total);
+}
+
+static st_status push_feature(run_state *s, st_feature *f)
+{
+    if (s->nfeatures == s->capfeatures) {
+        size_t cap = s->capfeatures ? s->capfeatures * 2 : 1024;
+        st_feature **a = st_realloc(s->features, cap * sizeof *a);
+        if (!a)
+            return ST_ERR_NOMEM;
+        s->features = a;
+        s->capfeatures = cap;
+    }
+    s->features[s->nfeatures++] = f;
+    return ST_OK;
+}
+
+/* A layer name unique in this run: the reader's name, then _2, _3 ... */
+static char *unique_layer_name(run_state *s, size_t upto, const char *base)
+{
+    for (int k = 1;; k++) {
+        char *name = k == 1 ? st_strdup(base) : st_strdup_printf("%s_%d", base, k);
+        if (!name)
+            return NULL;
+        size_t i = 0;
+        while (i < upto && strcmp(s->res->layers[i].name, name) != 0)
+            i++;
+        if (i == upto)
+            return name;
+        st_free(name);
+    }
+}
+
+static st_status read_layer(run_state *s, size_t l)
+{
+    st_read_options ro = ST_READ_OPTIONS_DEFAULT;
+    ro.crs_override = s->opt->crs_override;
+    st_reader *r = NULL;
+    st_status rc = st_reader_open(s->opt->inputs[l], &ro, s->diags, &r);
+    if (rc != ST_OK)
+        return rc;
+    st_run_layer *L = &s->res->layers[l];
+    for (;;) {
+        st_feature *f = NULL;
+        rc = st_reader_next(r, &f);
+        if (rc != ST_OK || !f)
+            break;
+        f->layer = (uint32_t)l;
+        f->bid = (uint64_t)s->nfeatures + 1;
+        rc = push_feature(s, f);
+        if (rc != ST_OK) {
+            st_feature_free(f);
+            break;
+        }
+        L->read++;
+        if ((L->read & 0x3FFF) == 0) {
+            long long done, total;
+            st_reader_progress(r, &done, &total);
+            progress(s, "read", done, total);
+        }
+    }
+    if (rc == ST_OK) {
+        L->name = unique_layer_name(s, l, st_reader_layer_name(r));
+        L->path = st_strdup(st_reader_path(r));
+        L->format = st_strdup(st_reader_format_name(r));
+        L->crs = st_strdup(st_reader_crs(r) ? st_reader_crs(r) : "");
+        rc = L->name && L->path && L->format && L->crs ? ST_OK : ST_ERR_NOMEM;
+    }
+    if (rc == ST_OK)
+        rc = st_fields_copy(&s->fields[l], st_reader_fields(r));
+    st_reader_close(r);
+    return rc;
+}
+
+/* The robust extent of layer l, for the swapped-axes check. */
+static st_status layer_extent(run_state *s, uint32_t l, size_t first, size_t end,
+                              st_footprint_extent *ext)
+{
+    double *xy = st_malloc(2 * (end - first + 1) * sizeof *xy);
+    if (!xy)
+        return ST_ERR_NOMEM;
+    size_t n = 0;
+    for (size_t i = first; i < end; i++)
+        if (s->features[i]->layer == l && st_footprint_center(&s->features[i]->geom, xy + 2 * n))
+            n++;
+    st_status rc = st_footprint_extent_compute(xy, n, ext);
+    st_free(xy);
+    return rc;
+}
+
+static st_status check_footprints(run_state *s, const st_footprint_config *cfg)
+{
+    st_footprint_checker *ck = NULL;
+    st_status rc = st_footprint_checker_new(&ck);
+    size_t i = 0;
+    for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++) {
+        size_t first = i, end = i;
+        while (end < s->nfeatures && s->features[end]->layer == l)
+            end++;
+        st_footprint_extent ext;
+        rc = layer_extent(s, (uint32_t)l, first, end, &ext);
+        if (rc != ST_OK)
+            break;
+        st_footprint_checker_set_extent(ck, &ext);
+        for (i = first; rc == ST_OK && i < end; i++) {
+            rc = st_footprint_check(ck, cfg, s->features[i], &s->findings);
+            if ((i & 0x3FFF) == 0)
+                progress(s, "footprints", (long long)i, (long long)s->nfeatures);
+        }
+        i = end;
+    }
+    st_footprint_checker_free(ck);
+    if (rc != ST_OK)
+        st_diags_add(s->diags, ST_SEV_ERROR, rc, NULL, "footprint stage failed: %s",
+                     st_status_name(rc));
+    return rc;
+}
+
+static st_status compare_neighbours(run_state *s)
+{
+    st_neighbours_config cfg;
+    st_neighbours_config_init(&cfg);
+    const char **names = st_calloc(s->res->nlayers, sizeof *names);
+    if (!names)
+        return ST_ERR_NOMEM;
+    for (size_t l = 0; l < s->res->nlayers; l++)
+        names[l] = s->res->layers[l].name;
+    st_neighbours_input in = {s->features, s->nfeatures, names, (uint32_t)s->res->nlayers};
+    progress(s, "neighbours", 0, (long long)s->nfeatures);
+    st_status rc = st_neighbours_run(&cfg, &in, s->gx, &s->findings, s->diags);
+    st_free(names);
+    return rc;
+}
+
+/* Findings in building order (stable: a stage's own order is kept). */
+static int by_bid(const void *a, const void *b)
+{
+    const st_finding *x = a, *y = b;
+    if (x->bid != y->bid)
+        return x->bid < y->bid ? -1 : 1;
+    return x < y ? -1 : x > y;
+}
+
+static void sort_findings(st_findings *f)
+{
+    /* qsort is not stable: make the array order part of the key by
+    ** sorting an index first. Simpler: insertion order is bid-major
+    ** within each stage, so a merge sort keeps ties in place. */
+    size_t n = f->count;
+    if (n < 2)
+        return;
+    st_finding *tmp = st_malloc(n * sizeof *tmp);
+    if (!tmp) {
+        qsort(f->items, n, sizeof *f->items, by_bid);   /* still ordered by bid */
+        return;
+    }
+    for (size_t width = 1; width < n; width *= 2) {
+        for (size_t lo = 0; lo < n; lo += 2 * width) {
+            size_t mid = lo + width < n ? lo + width : n;
+            size_t hi = lo + 2 * width < n ? lo + 2 * width : n;
+            size_t a = lo, b = mid, k = lo;
+            while (a < mid && b < hi)
+                tmp[k++] = f->items[b].bid < f->items[a].bid ? f->items[b++] : f->items[a++];
+            while (a < mid)
+                tmp[k++] = f->items[a++];
+            while (b < hi)
+                tmp[k++] = f->items[b++];
+        }
+        memcpy(f->items, tmp, n * sizeof *tmp);
+    }
+    st_free(tmp);
+}
+
+static void tally(run_state *s)
+{
+    for (size_t i = 0; i < s->nfeatures; i++) {
+        const st_feature *f = s->features[i];
+        st_run_layer *L = &s->res->layers[f->layer];
+        switch (f->status) {
+        case ST_STATUS_OK: L->kept++; break;
+        case ST_STATUS_REPAIRED: L->kept++; L->repaired++; break;
+        case ST_STATUS_DUPLICATE: L->duplicate++; break;
+        case ST_STATUS_REJECTED: L->rejected++; break;
+        }
+    }
+}
+
+static int by_count(const void *a, const void *b)
+{
+    const st_run_code_count *x = a, *y = b;
+    if (x->count != y->count)
+        return x->count > y->count ? -1 : 1;
+    return strcmp(x->code, y->code);
+}
+
+static st_status count_codes(run_state *s)
+{
+    st_run_result *r = s->res;
+    for (size_t k = 0; k < s->findings.count; k++) {
+        const st_finding *g = &s->findings.items[k];
+        r->findings[g->severity]++;
+        size_t c = 0;
+        while (c < r->ncodes && strcmp(r->codes[c].code, g->code) != 0)
+            c++;
+        if (c == r->ncodes) {
+            st_run_code_count *a = st_realloc(r->codes, (c + 1) * sizeof *a);
+            if (!a)
+                return ST_ERR_NOMEM;
+            r->codes = a;
+            r->codes[c] = (st_run_code_count){g->code, g->severity, 0};
+            r->ncodes++;
+        }
+        r->codes[c].count++;
+        if (g->severity > r->codes[c].severity)
+            r->codes[c].severity = g->severity;
+    }
+    qsort(r->codes, r->ncodes, sizeof *r->codes, by_count);
+    return ST_OK;
+}
+
+static void decide_gate(run_state *s)
+{
+    st_run_result *r = s->res;
+    st_fail_on on = s->opt->fail_on;
+    uint64_t n = on == ST_FAIL_ON_WARNING ? r->findings[ST_SEV_WARNING] + r->findings[ST_SEV_ERROR]
+               : on == ST_FAIL_ON_ERROR ? r->findings[ST_SEV_ERROR] : 0;
+    if (!n)
+        return;
+    r->gate_failed = 1;
+    r->gate_reason = st_strdup_printf("--fail-on %s: %llu finding(s) at or above that severity",
+                                      on == ST_FAIL_ON_WARNING ? "warn" : "error",
+                                      (unsigned long long)n);
+}
+
+/* kept (or set-aside) features in bid order */
+static st_feature **select_features(run_state *s, int kept, size_t *n)
+{
+    st_feature **out = st_malloc((s->nfeatures + 1) * sizeof *out);
+    *n = 0;
+    if (!out)
+        return NULL;
+    for (size_t i = 0; i < s->nfeatures; i++) {
+        st_feature_status st = s->features[i]->status;
+        int is_kept = st == ST_STATUS_OK || st == ST_STATUS_REPAIRED;
+        if (is_kept == kept)
+            out[(*n)++] = s->features[i];
+    }
+    return out;
+}
+
+static st_status write_run_info(run_state *s, st_inventory *inv)
+{
+    char when[32];
+    time_t t = time(NULL);
+    struct tm tmv;
+    strftime(when, sizeof when, "%Y-%m-%dT%H:%M:%SZ", gmtime_r(&t, &tmv));
+    size_t nl = s->res->nlayers;
+    size_t n = 3 + nl;
+    const char **kv = st_calloc(2 * n, sizeof *kv);
+    char **owned = st_calloc(nl + 1, sizeof *owned);
+    st_status rc = kv && owned ? ST_OK : ST_ERR_NOMEM;
+    if (rc == ST_OK) {
+        kv[0] = "tool";
+        kv[1] = "stocktake " ST_VERSION;
+        kv[2] = "command";
+        kv[3] = s->opt->command_line ? s->opt->command_line : "";
+        kv[4] = "finished";
+        kv[5] = when;
+        for (size_t l = 0; l < nl && rc == ST_OK; l++) {
+            const st_run_layer *L = &s->res->layers[l];
+            owned[l] = st_strdup_printf(
+                "%s (%s, %s): read %llu = buildings %llu + set aside %llu",
+                L->path, L->format, L->crs, (unsigned long long)L->read,
+                (unsigned long long)L->kept,
+                (unsigned long long)(L->duplicate + L->rejected));
+            kv[2 * (3 + l)] = L->name;
+            kv[2 * (3 + l) + 1] = owned[l];
+            if (!owned[l])
+                rc = ST_ERR_NOMEM;
+        }
+    }
+    if (rc == ST_OK)
+        rc = st_inventory_write_run_info(inv, kv, n);
+    for (size_t l = 0; owned && l < nl; l++)
+        st_free(owned[l]);
+    st_free(owned);
+    st_free(kv);
+    return rc;
+}
+
+static st_status write_inventory(run_state *s)
+{
+    size_t nl = s->res->nlayers;
+    st_inventory_layer *layers = st_calloc(nl, sizeof *layers);
+    if (!layers)
+        return ST_ERR_NOMEM;
+    for (size_t l = 0; l < nl; l++)
+        layers[l] = (st_inventory_layer){s->res->layers[l].name, &s->fields[l]};
+    st_inventory *inv = NULL;
+    size_t nk = 0, ns = 0;
+    st_feature **kept = NULL, **aside = NULL;
+    progress(s, "write", 0, (long long)s->nfeatures);
+    st_status rc = st_inventory_open(s->opt->output, layers, (uint32_t)nl, NULL, 0,
+                                     s->diags, &inv);
+    if (rc == ST_OK) {
+        kept = select_features(s, 1, &nk);
+        aside = select_features(s, 0, &ns);
+        rc = kept && aside ? ST_OK : ST_ERR_NOMEM;
+    }
+    if (rc == ST_OK)
+        rc = st_inventory_write_buildings(inv, kept, nk, NULL);
+    if (rc == ST_OK)
+        rc = st_inventory_write_set_aside(inv, aside, ns);
+    if (rc == ST_OK)
+        rc = st_inventory_write_findings(inv, &s->findings);
+    if (rc == ST_OK)
+        rc = write_run_info(s, inv);
+    if (rc == ST_OK)
+        rc = st_inventory_commit(inv);
+    st_inventory_close(inv);
+    st_free(kept);
+    st_free(aside);
+    st_free(layers);
+    return rc;
+}
+
+static st_status run_stages(run_state *s)
+{
+    st_status rc = ST_OK;
+    for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
+        rc = read_layer(s, l);
+    st_footprint_config cfg = st_footprint_config_default();
+    if (rc == ST_OK)
+        rc = check_footprints(s, &cfg);
+    if (rc == ST_OK)
+        rc = compare_neighbours(s);
+    if (rc == ST_OK) {
+        sort_findings(&s->findings);
+        tally(s);
+        rc = count_codes(s);
+    }
+    if (rc == ST_OK) {
+        decide_gate(s);
+        rc = write_inventory(s);
+    }
+    return rc;
+}
+
+st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_result **out)
+{
+    *out = NULL;
+    if (!opt->ninputs || !opt->output)
+        return st_diags_add(diags, ST_SEV_ERROR, ST_ERR_USAGE, NULL,
+                            "a run needs at least one input and an output");
+    run_state s;
+    memset(&s, 0, sizeof s);
+    s.opt = opt;
+    s.diags = diags;
+    st_findings_init(&s.findings);
+    s.res = st_calloc(1, sizeof *s.res);
+    s.fields = st_calloc(opt->ninputs, sizeof *s.fields);
+    s.gx = st_geos_new();
+    st_status rc = ST_ERR_NOMEM;
+    if (s.res && s.fields && s.gx) {
+        s.res->nlayers = opt->ninputs;
+        s.res->layers = st_calloc(opt->ninputs, sizeof *s.res->layers);
+        if (s.res->layers)
+            rc = run_stages(&s);
+    }
+    for (size_t i = 0; i < s.nfeatures; i++)
+        st_feature_free(s.features[i]);
+    st_free(s.features);
+    for (size_t l = 0; s.fields && l < opt->ninputs; l++)
+        st_fields_free(&s.fields[l]);
+    st_free(s.fields);
+    st_findings_free(&s.findings);
+    st_geos_free(s.gx);
+    if (rc != ST_OK) {
+        if (rc == ST_ERR_NOMEM)
+            st_diags_add(diags, ST_SEV_ERROR, rc, NULL, "out of memory");
+        st_run_result_free(s.res);
+        return rc;
+    }
+    *out = s.res;
+    return ST_OK;
+}
+
+void st_run_result_free(st_run_result *r)
+{
+    if (!r)
+        return;
+    for (size_t l = 0; r->layers && l < r->nlayers; l++) {
+        st_free(r->layers[l].name);
+        st_free(r->layers[l].path);
+        st_free(r->layers[l].format);
+        st_free(r->layers[l].crs);
+    }
+    st_free(r->layers);
+    st_free(r->codes);
+    st_free(r->gate_reason);
+    for (size_t i = 0; i < r->noutputs; i++)
+        st_free(r->outputs[i]);
+    st_free(r->outputs);
+    st_free(r);
+}
