@@ -132,7 +132,7 @@ static inline void fuzz_check_geom(const st_geom *g)
             fuzz_die("rings or coordinates without a part");
         return;
     }
-    if (!g->part_ring || !g->ring_coord || (g->ncoords && !g->xy))
+    if (!g->part_ring || (g->nrings && !g->ring_coord) || (g->ncoords && !g->xy))
         fuzz_die("geometry arrays missing");
     if (g->part_ring[0] != 0 || g->part_ring[g->nparts] != g->nrings)
         fuzz_die("part_ring does not span the rings");

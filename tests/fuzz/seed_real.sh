@@ -9,7 +9,7 @@ out=$1
 root=$(cd "$(dirname "$0")/../.." && pwd)
 real=$(cd "$root/../shared/data/real" 2>/dev/null && pwd) || exit 0
 py=/usr/bin/python3
-mkdir -p "$out/geojson" "$out/shp" "$out/rules"
+mkdir -p "$out/geojson" "$out/shp" "$out/rules" "$out/gpkg"
 
 # GeoJSON: the first 3 features of each layer, as a collection and as lines.
 for f in "$real"/*/*.geojson; do
@@ -36,6 +36,19 @@ if command -v ogr2ogr >/dev/null 2>&1; then
         sh "$root/tests/fuzz/pack_shp.sh" "$tmp/$name" >"$out/shp/real_$name"
     done
     rm -rf "$tmp"
+fi
+
+# GeoPackage: the geometry blobs of the first 5 features of each table.
+if command -v sqlite3 >/dev/null 2>&1; then
+    for f in "$real"/*/*.gpkg; do
+        [ -f "$f" ] || continue
+        name=$(basename "$(dirname "$f")")
+        sqlite3 -readonly "$f" "SELECT table_name, column_name FROM gpkg_geometry_columns" 2>/dev/null |
+        while IFS='|' read -r table col; do
+            sqlite3 -readonly "$f" "SELECT writefile('$out/gpkg/real_${name}_' || rowid, \"$col\")
+                FROM \"$table\" WHERE \"$col\" IS NOT NULL LIMIT 5" >/dev/null 2>&1 || true
+        done
+    done
 fi
 
 # Rules: the shipped rule packs.
