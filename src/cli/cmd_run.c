@@ -24,6 +24,9 @@ void st_help_run(FILE *out)
             "  -r, --rules FILE...  rule files (schema, footprint thresholds, map,\n"
             "                       derive, check); see docs/rules.md\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
+            "  --max-memory SIZE    stop early (exit 2) rather than need more memory\n"
+            "                       than SIZE (512M, 4G ...); default: 75%% of\n"
+            "                       physical memory or 8G, whichever is less\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
             "  -h, --help           this text\n"
@@ -70,6 +73,11 @@ static int parse_args(int argc, char **argv, run_args *a)
                 a->rules[a->opt.nrules++] = argv[++i];
         } else if (!strcmp(arg, "--crs") && has_next)
             a->opt.crs_override = argv[++i];
+        else if (!strcmp(arg, "--max-memory") && has_next) {
+            if (!st_cli_parse_size(argv[++i], &a->opt.max_memory))
+                return st_cli_usage_error("run", "--max-memory takes a size such as "
+                                          "512M or 4G, not '%s'", argv[i]);
+        }
         else if (!strcmp(arg, "--fail-on") && has_next) {
             const char *v = argv[++i];
             if (!strcmp(v, "warn") || !strcmp(v, "warning"))

@@ -8,7 +8,9 @@
 ** Errors: any input or output error stops the run before anything is
 **         renamed into place (diagnostics say where); findings never do.
 ** Memory: every feature is held until the inventory is written, because
-**         the neighbour stage needs all layers together.
+**         the neighbour stage needs all layers together; pipeline/guard.c
+**         keeps that under the run's memory limit and refuses an output
+**         that would overwrite an input, before anything is read.
 */
 #include <math.h>
 #include <stdio.h>
@@ -22,6 +24,7 @@
 #include "stocktake/io.h"
 #include "stocktake/neighbours.h"
 #include "stocktake/pipeline.h"
+#include "guardInt.h"
 #include "stocktake/rules.h"
 #include "pipelineInt.h"
 
@@ -37,6 +40,7 @@ typedef struct run_state {
     st_rules *rules;             /* NULL without -r */
     st_footprint_config fcfg;
     st_neighbours_config ncfg;
+    st_memory_budget budget;     /* --max-memory and the estimate so far */
 } run_state;
 
 static void progress(run_state *s, const char *stage, long long done, long long total)
@@ -96,6 +100,8 @@ static st_status read_layer(run_state *s, size_t l)
         if (!f->source_id &&
             !(f->source_id = st_strdup_printf("%llu", (unsigned long long)f->index)))
             rc = ST_ERR_NOMEM;
+        if (rc == ST_OK)
+            rc = st_run_guard_feature(&s->budget, f, st_reader_path(r), s->diags);
         if (rc == ST_OK)
             rc = push_feature(s, f);
         if (rc != ST_OK) {
@@ -481,6 +487,8 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
         s.res->nlayers = opt->ninputs;
         s.res->layers = st_calloc(opt->ninputs, sizeof *s.res->layers);
         if (s.res->layers)
+            rc = st_run_guard_start(opt, diags, &s.budget);
+        if (rc == ST_OK)
             rc = run_stages(&s);
     }
     for (size_t i = 0; i < s.nfeatures; i++)
