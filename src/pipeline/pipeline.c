@@ -1,6 +1,6 @@
 /*
 ** pipeline/pipeline.c -- one run, stage after stage, data flowing one way:
-** read -> footprint -> neighbours -> write.
+** read -> footprint -> neighbours -> write (inventory, then the report).
 **
 ** Input:  st_run_options (input layers, output path, gate threshold).
 ** Output: the inventory (inventory.h) and an st_run_result with the
@@ -22,6 +22,7 @@
 #include "stocktake/io.h"
 #include "stocktake/neighbours.h"
 #include "stocktake/pipeline.h"
+#include "stocktake/report.h"
 
 typedef struct run_state {
     const st_run_options *opt;
@@ -32,7 +33,16 @@ typedef struct run_state {
     st_run_result *res;
     st_findings findings;
     st_geos *gx;
+    char started[32];            /* UTC, ISO 8601 */
+    st_report_dist dist;         /* kept buildings, filled while writing */
 } run_state;
+
+/* The files a run read, hashed for the report (role and path per entry). */
+typedef struct report_files {
+    st_report_file *items;
+    size_t count, cap;
+    char **paths;                /* owned copies the items point into */
+} report_files;
 
 static void progress(run_state *s, const char *stage, long long done, long long total)
 {
@@ -327,6 +337,157 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     return rc;
 }
 
+static void utc_now(char when[32])
+{
+    time_t t = time(NULL);
+    struct tm tmv;
+    strftime(when, 32, "%Y-%m-%dT%H:%M:%SZ", gmtime_r(&t, &tmv));
+}
+
+/* Storeys field of the schema, or -1 (no rules, no audit yet). */
+static int32_t storeys_field(const run_state *s)
+{
+    (void)s;
+    return -1;
+}
+
+static void report_files_free(report_files *rf)
+{
+    for (size_t i = 0; i < rf->count; i++)
+        st_free(rf->paths[i]);
+    st_free(rf->paths);
+    st_free(rf->items);
+    memset(rf, 0, sizeof *rf);
+}
+
+/* Add 'path' (taken: freed here on failure or when already listed). */
+static st_status add_file(report_files *rf, const char *role, char *path)
+{
+    if (!path)
+        return ST_ERR_NOMEM;
+    for (size_t i = 0; i < rf->count; i++)
+        if (!strcmp(rf->paths[i], path)) {
+            st_free(path);
+            return ST_OK;
+        }
+    if (rf->count == rf->cap) {
+        size_t cap = rf->cap ? 2 * rf->cap : 8;
+        st_report_file *it = st_realloc(rf->items, cap * sizeof *it);
+        if (it)
+            rf->items = it;
+        char **p = it ? st_realloc(rf->paths, cap * sizeof *p) : NULL;
+        if (!p) {
+            st_free(path);
+            return ST_ERR_NOMEM;
+        }
+        rf->paths = p;
+        rf->cap = cap;
+    }
+    rf->paths[rf->count] = path;
+    memset(&rf->items[rf->count], 0, sizeof rf->items[rf->count]);
+    rf->items[rf->count].role = role;
+    rf->items[rf->count].path = path;
+    rf->count++;
+    return ST_OK;
+}
+
+/* A layer's file and, for a shapefile, its sibling files. */
+static st_status add_layer_files(report_files *rf, const char *role, const char *path)
+{
+    char **sib = NULL;
+    size_t n = 0;
+    st_status rc = st_report_file_siblings(path, &sib, &n);
+    for (size_t i = 0; i < n; i++) {
+        if (rc == ST_OK)
+            rc = add_file(rf, role, sib[i]);
+        else
+            st_free(sib[i]);
+    }
+    st_free(sib);
+    return rc;
+}
+
+static st_status collect_files(run_state *s, report_files *rf)
+{
+    st_status rc = ST_OK;
+    for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++)
+        rc = add_layer_files(rf, "input", s->res->layers[l].path);
+    if (rc == ST_OK)
+        rc = st_report_hash_files(rf->items, rf->count, s->diags);
+    return rc;
+}
+
+/* res->outputs: the inventory, then the report files when asked for. */
+static st_status set_outputs(run_state *s)
+{
+    st_run_result *r = s->res;
+    r->outputs = st_calloc(3, sizeof *r->outputs);
+    if (!r->outputs)
+        return ST_ERR_NOMEM;
+    r->outputs[r->noutputs++] = st_strdup(s->opt->output);
+    if (s->opt->report_dir) {
+        const char *d = s->opt->report_dir;
+        size_t dl = strlen(d);
+        while (dl > 1 && d[dl - 1] == '/')
+            dl--;
+        r->outputs[r->noutputs++] = st_strdup_printf("%.*s/report.json", (int)dl, d);
+        r->outputs[r->noutputs++] = st_strdup_printf("%.*s/report.html", (int)dl, d);
+    }
+    for (size_t i = 0; i < r->noutputs; i++)
+        if (!r->outputs[i])
+            return ST_ERR_NOMEM;
+    return ST_OK;
+}
+
+static void report_input(run_state *s, const report_files *rf, const char *finished,
+                         st_report_input *in)
+{
+    memset(in, 0, sizeof *in);
+    in->run = s->res;
+    in->audit = NULL;
+    in->dist = &s->dist;
+    in->files = rf ? rf->items : NULL;
+    in->nfiles = rf ? rf->count : 0;
+    in->command_line = s->opt->command_line;
+    in->started = s->started;
+    in->finished = finished;
+    in->outputs = (const char *const *)s->res->outputs;
+    in->noutputs = s->res->noutputs;
+}
+
+/* Render report.json and report.html under temporary names. */
+static st_status prepare_report(run_state *s, st_report_pending **rep)
+{
+    report_files rf;
+    memset(&rf, 0, sizeof rf);
+    progress(s, "report", 0, 1);
+    st_status rc = collect_files(s, &rf);
+    if (rc == ST_OK) {
+        char finished[32];
+        utc_now(finished);
+        st_report_input in;
+        report_input(s, &rf, finished, &in);
+        rc = st_report_prepare(&in, s->opt->report_dir, s->diags, rep);
+    }
+    report_files_free(&rf);
+    return rc;
+}
+
+static st_status make_summary(run_state *s)
+{
+    char finished[32];
+    utc_now(finished);
+    st_report_input in;
+    report_input(s, NULL, finished, &in);
+    st_buf b;
+    st_buf_init(&b, ST_REPORT_MAX_BYTES);
+    st_status rc = st_report_text(&in, &b);
+    if (rc == ST_OK)
+        s->res->summary = st_buf_take(&b);
+    st_buf_free(&b);
+    return rc == ST_OK && !s->res->summary ? ST_ERR_NOMEM : rc;
+}
+
 static st_status write_inventory(run_state *s)
 {
     size_t nl = s->res->nlayers;
@@ -346,6 +507,8 @@ static st_status write_inventory(run_state *s)
         aside = select_features(s, 0, &ns);
         rc = kept && aside ? ST_OK : ST_ERR_NOMEM;
     }
+    for (size_t i = 0; rc == ST_OK && i < nk; i++)
+        st_report_dist_add(&s->dist, kept[i], storeys_field(s));
     if (rc == ST_OK)
         rc = st_inventory_write_buildings(inv, kept, nk, NULL);
     if (rc == ST_OK)
@@ -354,8 +517,18 @@ static st_status write_inventory(run_state *s)
         rc = st_inventory_write_findings(inv, &s->findings);
     if (rc == ST_OK)
         rc = write_run_info(s, inv);
+    /* The report is rendered and written to temporary names before the
+    ** inventory is renamed into place, so an error in either leaves
+    ** nothing behind; the two renames after that do not fail in practice
+    ** (same folders, files already written). */
+    st_report_pending *rep = NULL;
+    if (rc == ST_OK && s->opt->report_dir)
+        rc = prepare_report(s, &rep);
     if (rc == ST_OK)
         rc = st_inventory_commit(inv);
+    if (rc == ST_OK && rep)
+        rc = st_report_commit(rep, s->diags);
+    st_report_pending_free(rep);
     st_inventory_close(inv);
     st_free(kept);
     st_free(aside);
@@ -380,8 +553,13 @@ static st_status run_stages(run_state *s)
     }
     if (rc == ST_OK) {
         decide_gate(s);
-        rc = write_inventory(s);
+        rc = set_outputs(s);
     }
+    /* the summary first: once the outputs are in place nothing may fail */
+    if (rc == ST_OK)
+        rc = make_summary(s);
+    if (rc == ST_OK)
+        rc = write_inventory(s);
     return rc;
 }
 
@@ -395,6 +573,7 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     memset(&s, 0, sizeof s);
     s.opt = opt;
     s.diags = diags;
+    utc_now(s.started);
     st_findings_init(&s.findings);
     s.res = st_calloc(1, sizeof *s.res);
     s.fields = st_calloc(opt->ninputs, sizeof *s.fields);
@@ -440,5 +619,6 @@ void st_run_result_free(st_run_result *r)
     for (size_t i = 0; i < r->noutputs; i++)
         st_free(r->outputs[i]);
     st_free(r->outputs);
+    st_free(r->summary);
     st_free(r);
 }
