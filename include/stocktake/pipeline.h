@@ -18,6 +18,8 @@ typedef enum { ST_FAIL_ON_NONE = 0, ST_FAIL_ON_WARNING, ST_FAIL_ON_ERROR } st_fa
 typedef struct st_run_options {
     const char *const *inputs;   /* layer specs ("a.shp", "b.gpkg:layer") */
     size_t ninputs;
+    const char *const *rules;    /* rule files, loaded as one set (may be 0) */
+    size_t nrules;
     const char *output;          /* OUT.gpkg | .geojson | .geojsonl | .csv | .shp */
     const char *crs_override;    /* --crs for layers without a CRS, or NULL */
     st_fail_on fail_on;          /* findings at or above this fail the gate */
@@ -43,6 +45,12 @@ typedef struct st_run_code_count {
     uint64_t count;
 } st_run_code_count;
 
+typedef struct st_run_unmapped {
+    char *field;                 /* schema field, owned */
+    char *value;                 /* source value no map line matched, owned */
+    uint64_t count;
+} st_run_unmapped;
+
 typedef struct st_run_result {
     st_run_layer *layers;
     size_t nlayers;
@@ -51,6 +59,8 @@ typedef struct st_run_result {
     uint64_t findings[3];        /* by severity: note, warning, error */
     int gate_failed;             /* 1: exit code 1 */
     char *gate_reason;           /* owned, why the gate failed, or NULL */
+    st_run_unmapped *unmapped;   /* most frequent first */
+    size_t nunmapped;
     char **outputs;              /* files written */
     size_t noutputs;
     char *summary;               /* owned: the terminal summary (report.h) for

@@ -22,6 +22,8 @@ void st_help_run(FILE *out)
             "                       run_info) or OUT.geojson/.geojsonl/.csv/.shp (one\n"
             "                       file per layer: OUT.set_aside.EXT, OUT.findings.EXT,\n"
             "                       OUT.run_info.csv)\n"
+            "  -r, --rules FILE...  rule files (schema, footprint thresholds, map,\n"
+            "                       derive, check); see docs/rules.md\n"
             "  --report DIR         write DIR/report.json and DIR/report.html (a\n"
             "                       self-contained page: map, charts, tables)\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
@@ -42,6 +44,7 @@ void st_help_run(FILE *out)
 typedef struct run_args {
     st_run_options opt;
     const char **inputs;
+    const char **rules;
     int quiet;
 } run_args;
 
@@ -55,14 +58,21 @@ static void on_progress(void *ud, const char *stage, long long done, long long t
 static int parse_args(int argc, char **argv, run_args *a)
 {
     a->inputs = calloc((size_t)argc, sizeof *a->inputs);
-    if (!a->inputs)
+    a->rules = calloc((size_t)argc, sizeof *a->rules);
+    if (!a->inputs || !a->rules)
         return st_cli_usage_error("run", "out of memory");
     for (int i = 1; i < argc; i++) {
         const char *arg = argv[i];
         int has_next = i + 1 < argc;
         if ((!strcmp(arg, "-o") || !strcmp(arg, "--output")) && has_next)
             a->opt.output = argv[++i];
-        else if (!strcmp(arg, "--report") && has_next)
+        else if ((!strcmp(arg, "-r") || !strcmp(arg, "--rules")) && has_next) {
+            /* -r takes one or more rule files, up to the next option */
+            a->rules[a->opt.nrules++] = argv[++i];
+            while (i + 1 < argc && argv[i + 1][0] != '-' &&
+                   st_str_ends_with_ci(argv[i + 1], ".rules"))
+                a->rules[a->opt.nrules++] = argv[++i];
+        } else if (!strcmp(arg, "--report") && has_next)
             a->opt.report_dir = argv[++i];
         else if (!strcmp(arg, "--crs") && has_next)
             a->opt.crs_override = argv[++i];
@@ -86,6 +96,7 @@ static int parse_args(int argc, char **argv, run_args *a)
     if (!a->opt.ninputs)
         return st_cli_usage_error("run", "give at least one input layer");
     a->opt.inputs = a->inputs;
+    a->opt.rules = a->rules;
     return ST_EXIT_OK;
 }
 
@@ -96,6 +107,7 @@ int st_cmd_run(int argc, char **argv)
     int rc = parse_args(argc, argv, &a);
     if (rc != ST_EXIT_OK) {
         free(a.inputs);
+        free(a.rules);
         return rc;
     }
     st_progress p;
@@ -126,5 +138,6 @@ int st_cmd_run(int argc, char **argv)
     st_diags_free(&d);
     st_buf_free(&cmd);
     free(a.inputs);
+    free(a.rules);
     return rc;
 }

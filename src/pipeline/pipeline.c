@@ -1,6 +1,7 @@
 /*
 ** pipeline/pipeline.c -- one run, stage after stage, data flowing one way:
-** read -> footprint -> neighbours -> write (inventory, then the report).
+** read -> footprint -> neighbours -> rules -> write (inventory, then the
+** report).
 **
 ** Input:  st_run_options (input layers, output path, gate threshold).
 ** Output: the inventory (inventory.h) and an st_run_result with the
@@ -23,6 +24,8 @@
 #include "stocktake/neighbours.h"
 #include "stocktake/pipeline.h"
 #include "stocktake/report.h"
+#include "stocktake/rules.h"
+#include "pipelineInt.h"
 
 typedef struct run_state {
     const st_run_options *opt;
@@ -33,6 +36,9 @@ typedef struct run_state {
     st_run_result *res;
     st_findings findings;
     st_geos *gx;
+    st_rules *rules;             /* NULL without -r */
+    st_footprint_config fcfg;
+    st_neighbours_config ncfg;
     char started[32];            /* UTC, ISO 8601 */
     st_report_dist dist;         /* kept buildings, filled while writing */
 } run_state;
@@ -137,8 +143,9 @@ static st_status layer_extent(run_state *s, uint32_t l, size_t first, size_t end
     return rc;
 }
 
-static st_status check_footprints(run_state *s, const st_footprint_config *cfg)
+static st_status check_footprints(run_state *s)
 {
+    const st_footprint_config *cfg = &s->fcfg;
     st_footprint_checker *ck = NULL;
     st_status rc = st_footprint_checker_new(&ck);
     size_t i = 0;
@@ -167,8 +174,6 @@ static st_status check_footprints(run_state *s, const st_footprint_config *cfg)
 
 static st_status compare_neighbours(run_state *s)
 {
-    st_neighbours_config cfg;
-    st_neighbours_config_init(&cfg);
     const char **names = st_calloc(s->res->nlayers, sizeof *names);
     if (!names)
         return ST_ERR_NOMEM;
@@ -176,8 +181,54 @@ static st_status compare_neighbours(run_state *s)
         names[l] = s->res->layers[l].name;
     st_neighbours_input in = {s->features, s->nfeatures, names, (uint32_t)s->res->nlayers};
     progress(s, "neighbours", 0, (long long)s->nfeatures);
-    st_status rc = st_neighbours_run(&cfg, &in, s->gx, &s->findings, s->diags);
+    st_status rc = st_neighbours_run(&s->ncfg, &in, s->gx, &s->findings, s->diags);
     st_free(names);
+    return rc;
+}
+
+/* The unmapped values of the run, most frequent first, copied into the
+** result so they outlive the rule context. */
+static st_status keep_unmapped(run_state *s, const st_unmapped *u)
+{
+    st_unmapped_item *items = NULL;
+    size_t n = 0;
+    st_status rc = st_unmapped_sorted(u, &items, &n);
+    if (rc != ST_OK)
+        return rc;
+    st_run_result *r = s->res;
+    r->unmapped = st_calloc(n ? n : 1, sizeof *r->unmapped);
+    rc = r->unmapped ? ST_OK : ST_ERR_NOMEM;
+    for (size_t i = 0; rc == ST_OK && i < n; i++) {
+        st_run_unmapped *m = &r->unmapped[i];
+        m->field = st_strdup(items[i].field);
+        m->value = st_strdup(items[i].value);
+        m->count = items[i].count;
+        r->nunmapped = i + 1;
+        if (!m->field || !m->value)
+            rc = ST_ERR_NOMEM;
+    }
+    st_free(items);
+    return rc;
+}
+
+/* map -> derive -> check on every kept building. */
+static st_status apply_rules(run_state *s)
+{
+    if (!s->rules)
+        return ST_OK;
+    st_rules_ctx *ctx = NULL;
+    st_status rc = st_rules_ctx_new(s->rules, &ctx);
+    for (size_t i = 0; rc == ST_OK && i < s->nfeatures; i++) {
+        st_feature *f = s->features[i];
+        if (f->status != ST_STATUS_OK && f->status != ST_STATUS_REPAIRED)
+            continue;
+        rc = st_rules_apply(ctx, f, &s->fields[f->layer], &s->findings);
+        if ((i & 0x3FFF) == 0)
+            progress(s, "rules", (long long)i, (long long)s->nfeatures);
+    }
+    if (rc == ST_OK)
+        rc = keep_unmapped(s, st_rules_ctx_unmapped(ctx));
+    st_rules_ctx_free(ctx);
     return rc;
 }
 
@@ -344,11 +395,10 @@ static void utc_now(char when[32])
     strftime(when, 32, "%Y-%m-%dT%H:%M:%SZ", gmtime_r(&t, &tmv));
 }
 
-/* Storeys field of the schema, or -1 (no rules, no audit yet). */
+/* Storeys field of the schema, or -1 (no rules). */
 static int32_t storeys_field(const run_state *s)
 {
-    (void)s;
-    return -1;
+    return s->rules ? st_rules_field_find(s->rules, "storeys") : -1;
 }
 
 static void report_files_free(report_files *rf)
@@ -412,6 +462,10 @@ static st_status collect_files(run_state *s, report_files *rf)
     st_status rc = ST_OK;
     for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++)
         rc = add_layer_files(rf, "input", s->res->layers[l].path);
+    for (size_t i = 0; rc == ST_OK && i < s->opt->nrules; i++)
+        rc = add_file(rf, "rules", st_strdup(s->opt->rules[i]));
+    for (size_t i = 0; rc == ST_OK && s->rules && i < st_rules_table_count(s->rules); i++)
+        rc = add_file(rf, "defaults table", st_strdup(st_rules_table(s->rules, i)->path));
     if (rc == ST_OK)
         rc = st_report_hash_files(rf->items, rf->count, s->diags);
     return rc;
@@ -500,8 +554,17 @@ static st_status write_inventory(run_state *s)
     size_t nk = 0, ns = 0;
     st_feature **kept = NULL, **aside = NULL;
     progress(s, "write", 0, (long long)s->nfeatures);
-    st_status rc = st_inventory_open(s->opt->output, layers, (uint32_t)nl, NULL, 0,
+    uint32_t nschema = s->rules ? st_rules_field_count(s->rules) : 0;
+    const char **schema = st_calloc(nschema + 1, sizeof *schema);
+    if (!schema) {
+        st_free(layers);
+        return ST_ERR_NOMEM;
+    }
+    for (uint32_t k = 0; k < nschema; k++)
+        schema[k] = st_rules_field(s->rules, k)->name;
+    st_status rc = st_inventory_open(s->opt->output, layers, (uint32_t)nl, schema, nschema,
                                      s->diags, &inv);
+    st_free(schema);
     if (rc == ST_OK) {
         kept = select_features(s, 1, &nk);
         aside = select_features(s, 0, &ns);
@@ -536,16 +599,30 @@ static st_status write_inventory(run_state *s)
     return rc;
 }
 
+/* Rules first: a bad rule file stops the run before any data is read. */
+static st_status load_rules(run_state *s)
+{
+    s->fcfg = st_footprint_config_default();
+    st_neighbours_config_init(&s->ncfg);
+    if (!s->opt->nrules)
+        return ST_OK;
+    st_status rc = st_rules_load(s->opt->rules, s->opt->nrules, s->diags, &s->rules);
+    if (rc == ST_OK)
+        rc = st_settings_apply(s->rules, &s->fcfg, &s->ncfg, s->diags);
+    return rc;
+}
+
 static st_status run_stages(run_state *s)
 {
-    st_status rc = ST_OK;
+    st_status rc = load_rules(s);
     for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
         rc = read_layer(s, l);
-    st_footprint_config cfg = st_footprint_config_default();
     if (rc == ST_OK)
-        rc = check_footprints(s, &cfg);
+        rc = check_footprints(s);
     if (rc == ST_OK)
         rc = compare_neighbours(s);
+    if (rc == ST_OK)
+        rc = apply_rules(s);
     if (rc == ST_OK) {
         sort_findings(&s->findings);
         tally(s);
@@ -593,6 +670,7 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     st_free(s.fields);
     st_findings_free(&s.findings);
     st_geos_free(s.gx);
+    st_rules_free(s.rules);
     if (rc != ST_OK) {
         if (rc == ST_ERR_NOMEM)
             st_diags_add(diags, ST_SEV_ERROR, rc, NULL, "out of memory");
@@ -616,6 +694,11 @@ void st_run_result_free(st_run_result *r)
     st_free(r->layers);
     st_free(r->codes);
     st_free(r->gate_reason);
+    for (size_t i = 0; r->unmapped && i < r->nunmapped; i++) {
+        st_free(r->unmapped[i].field);
+        st_free(r->unmapped[i].value);
+    }
+    st_free(r->unmapped);
     for (size_t i = 0; i < r->noutputs; i++)
         st_free(r->outputs[i]);
     st_free(r->outputs);

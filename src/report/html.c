@@ -175,8 +175,8 @@ static void gate_why(st_rout *o, const st_report_input *in)
     const st_audit_gate *g = NULL;
     size_t n = st_rep_gates(in, &fallback, &g);
     if (!n) {
-        st_rout_puts(o, "<p class=\"why\">No gate was set: no <code>gate</code> statement in the "
-                        "rules and no <code>--fail-on</code>.</p>");
+        st_rout_puts(o, "<p class=\"why\">No gate condition was evaluated (no <code>gate</code> "
+                        "statement applied and no <code>--fail-on</code>).</p>");
         return;
     }
     size_t failed = 0;
@@ -423,7 +423,7 @@ static void gate_section(st_rout *o, const st_report_input *in)
     size_t n = st_rep_gates(in, &fallback, &g);
     st_rout_puts(o, "<section id=\"gate\"><h2>Quality gate</h2>");
     if (!n) {
-        st_rout_puts(o, "<p class=\"empty\">No gate was set.</p></section>");
+        st_rout_puts(o, "<p class=\"empty\">No gate condition was evaluated.</p></section>");
         return;
     }
     st_rout_puts(o, "<p class=\"note\">The run exits with code 1 when any condition fails, so a "
@@ -451,10 +451,11 @@ static void gate_section(st_rout *o, const st_report_input *in)
     st_rout_puts(o, "</tbody></table></div></section>");
 }
 
-static void unmapped_section(st_rout *o, const st_audit *a)
+static void unmapped_section(st_rout *o, const st_report_input *in)
 {
+    size_t total = st_rep_unmapped_count(in);
     st_rout_puts(o, "<section id=\"unmapped\"><h2>Unmapped source values</h2>");
-    if (!a || !a->nunmapped) {
+    if (!total) {
         st_rout_puts(o, "<p class=\"empty\">None: every source value met a map line (or the "
                         "run had no map rules).</p></section>");
         return;
@@ -466,20 +467,22 @@ static void unmapped_section(st_rout *o, const st_audit *a)
     static const int num[] = {0, 0, 1};
     sortable_head(o, cols, num, 3);
     st_rout_puts(o, "<tbody>");
-    size_t n = a->nunmapped < ST_REPORT_HTML_MAX_UNMAPPED ? a->nunmapped
-                                                          : ST_REPORT_HTML_MAX_UNMAPPED;
+    size_t n = total < ST_REPORT_HTML_MAX_UNMAPPED ? total : ST_REPORT_HTML_MAX_UNMAPPED;
     for (size_t i = 0; i < n; i++) {
+        const char *field, *value;
+        uint64_t count;
+        st_rep_unmapped_at(in, i, &field, &value, &count);
         st_rout_puts(o, "<tr>");
-        td_text(o, a->unmapped[i].field);
+        td_text(o, field);
         st_rout_puts(o, "<td><code>");
-        st_rout_esc(o, a->unmapped[i].value);
+        st_rout_esc(o, value);
         st_rout_puts(o, "</code></td>");
-        td_count(o, a->unmapped[i].count);
+        td_count(o, count);
         st_rout_puts(o, "</tr>");
     }
     st_rout_puts(o, "</tbody></table></div>");
-    if (a->nunmapped > n)
-        st_rout_printf(o, "<p class=\"note\">%zu more in report.json.</p>", a->nunmapped - n);
+    if (total > n)
+        st_rout_printf(o, "<p class=\"note\">%zu more in report.json.</p>", total - n);
     st_rout_puts(o, "</section>");
 }
 
@@ -596,7 +599,7 @@ st_status st_report_html(const st_report_input *in, st_buf *out)
     districts_section(&o, in->audit);
     balance_section(&o, in->run);
     gate_section(&o, in);
-    unmapped_section(&o, in->audit);
+    unmapped_section(&o, in);
     learned_section(&o, in->audit);
     run_section(&o, in);
     cautions_section(&o);

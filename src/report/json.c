@@ -367,15 +367,18 @@ static void learned_section(jw *j, const st_audit *a)
     arr_end(j);
 }
 
-static void unmapped_section(jw *j, const st_audit *a)
+static void unmapped_section(jw *j, const st_report_input *in)
 {
     key(j, "unmapped");
     arr(j);
-    for (size_t i = 0; a && i < a->nunmapped; i++) {
+    for (size_t i = 0; i < st_rep_unmapped_count(in); i++) {
+        const char *field, *value;
+        uint64_t count;
+        st_rep_unmapped_at(in, i, &field, &value, &count);
         obj(j);
-        key(j, "field"), str(j, a->unmapped[i].field);
-        key(j, "value"), str(j, a->unmapped[i].value);
-        key(j, "count"), u64(j, a->unmapped[i].count);
+        key(j, "field"), str(j, field);
+        key(j, "value"), str(j, value);
+        key(j, "count"), u64(j, count);
         obj_end(j);
     }
     arr_end(j);
@@ -474,7 +477,7 @@ st_status st_report_json(const st_report_input *in, st_buf *out)
     districts_section(&j, in->audit);
     reference_section(&j, in->audit);
     learned_section(&j, in->audit);
-    unmapped_section(&j, in->audit);
+    unmapped_section(&j, in);
     distributions_section(&j, in->dist);
     gate_section(&j, in);
     obj_end(&j);

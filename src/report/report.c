@@ -175,6 +175,25 @@ size_t st_rep_gates(const st_report_input *in, st_audit_gate *fallback,
     return 1;
 }
 
+size_t st_rep_unmapped_count(const st_report_input *in)
+{
+    return in->audit ? in->audit->nunmapped : in->run->nunmapped;
+}
+
+void st_rep_unmapped_at(const st_report_input *in, size_t i, const char **field,
+                        const char **value, uint64_t *count)
+{
+    if (in->audit) {
+        *field = in->audit->unmapped[i].field;
+        *value = in->audit->unmapped[i].value;
+        *count = in->audit->unmapped[i].count;
+    } else {
+        *field = in->run->unmapped[i].field;
+        *value = in->run->unmapped[i].value;
+        *count = in->run->unmapped[i].count;
+    }
+}
+
 int st_rep_gate_failed(const st_report_input *in)
 {
     return in->run->gate_failed || (in->audit && in->audit->gate_failed);

@@ -43,6 +43,11 @@ const char *st_rep_ref_words(st_ref_state s);
 ** from the run's --fail-on outcome in *fallback. */
 size_t st_rep_gates(const st_report_input *in, st_audit_gate *fallback,
                     const st_audit_gate **out);
+/* Source values no map line matched: the audit's list, or without an
+** audit the run's. Entry i's strings are borrowed from the input. */
+size_t st_rep_unmapped_count(const st_report_input *in);
+void st_rep_unmapped_at(const st_report_input *in, size_t i, const char **field,
+                        const char **value, uint64_t *count);
 /* 1 when the run failed its gate. */
 int st_rep_gate_failed(const st_report_input *in);
 /* Totals over every input layer. */

@@ -17,6 +17,7 @@
 
 #define TOP_CODES 8
 #define LIST_DISTRICTS 6
+#define TOP_UNMAPPED 10
 
 static void balance(st_rout *o, const st_run_result *r)
 {
@@ -128,6 +129,22 @@ static void fields(st_rout *o, const st_audit *a)
     }
 }
 
+static void unmapped(st_rout *o, const st_report_input *in)
+{
+    size_t n = st_rep_unmapped_count(in);
+    if (!n)
+        return;
+    st_rout_puts(o, "\nunmapped source values (add map lines for these first):\n");
+    for (size_t i = 0; i < n && i < TOP_UNMAPPED; i++) {
+        const char *field, *value;
+        uint64_t count;
+        st_rep_unmapped_at(in, i, &field, &value, &count);
+        st_rout_printf(o, "  %-16s %-32s %10llu\n", field, value, (unsigned long long)count);
+    }
+    if (n > TOP_UNMAPPED)
+        st_rout_printf(o, "  ... and %zu more in the report\n", n - TOP_UNMAPPED);
+}
+
 static void gates(st_rout *o, const st_report_input *in)
 {
     st_audit_gate fallback;
@@ -136,7 +153,7 @@ static void gates(st_rout *o, const st_report_input *in)
     int failed = st_rep_gate_failed(in);
     st_rout_printf(o, "\ngate: %s", failed ? "FAILED" : "passed");
     if (!n)
-        st_rout_puts(o, in->run->gate_reason ? "" : " (no gate statements, no --fail-on)");
+        st_rout_puts(o, in->run->gate_reason ? "" : " (no gate condition was evaluated)");
     if (!in->audit && in->run->gate_reason)
         st_rout_printf(o, " -- %s", in->run->gate_reason);
     st_rout_puts(o, "\n");
@@ -162,6 +179,7 @@ st_status st_report_text(const st_report_input *in, st_buf *out)
         districts(&o, in->audit);
         fields(&o, in->audit);
     }
+    unmapped(&o, in);
     gates(&o, in);
     for (size_t i = 0; i < in->noutputs; i++)
         st_rout_printf(&o, "%s%s", i ? "\n        " : "\nwritten: ", in->outputs[i]);
