@@ -337,8 +337,6 @@ static void reference_section(jw *j, const st_audit *a)
     key(j, "districts");
     obj(j);
     for (int s = ST_REF_NONE; s <= ST_REF_ABSENT; s++) {
-        if (s == ST_REF_ABSENT)
-            continue;
         key(j, st_rep_ref_name((st_ref_state)s));
         u64(j, states[s]);
     }

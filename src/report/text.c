@@ -92,13 +92,20 @@ static void districts(st_rout *o, const st_audit *a)
     size_t counts[5] = {0};
     for (size_t i = 0; i < a->ndistricts; i++)
         counts[a->districts[i].ref]++;
-    size_t nd = a->ndistricts;
-    if (nd && !strcmp(a->districts[nd - 1].key, "none"))
-        nd--;
+    /* the layer's districts: not the reference's absent ones, not "none" */
+    size_t nd = 0;
+    const st_audit_district *none = NULL;
+    for (size_t i = 0; i < a->ndistricts; i++) {
+        const st_audit_district *d = &a->districts[i];
+        if (!d->geom && !strcmp(d->key, "none"))
+            none = d;
+        else
+            nd += d->ref != ST_REF_ABSENT;
+    }
     st_rout_printf(o, "\ndistricts: %zu", nd);
-    if (nd < a->ndistricts)
+    if (none)
         st_rout_printf(o, "; outside every district: %llu buildings",
-                       (unsigned long long)a->districts[a->ndistricts - 1].buildings);
+                       (unsigned long long)none->buildings);
     st_rout_puts(o, "\n");
     if (counts[ST_REF_OK] + counts[ST_REF_UNDER] + counts[ST_REF_OVER] == 0)
         return;
