@@ -392,13 +392,6 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     return rc;
 }
 
-static void utc_now(char when[32])
-{
-    time_t t = time(NULL);
-    struct tm tmv;
-    strftime(when, 32, "%Y-%m-%dT%H:%M:%SZ", gmtime_r(&t, &tmv));
-}
-
 /* Storeys field of the schema, or -1 (no rules). */
 static int32_t storeys_field(const run_state *s)
 {
@@ -522,7 +515,7 @@ static st_status prepare_report(run_state *s, st_report_pending **rep)
     st_status rc = collect_files(s, &rf);
     if (rc == ST_OK) {
         char finished[32];
-        utc_now(finished);
+        st_now_iso8601(finished);
         st_report_input in;
         report_input(s, &rf, finished, &in);
         rc = st_report_prepare(&in, s->opt->report_dir, s->diags, rep);
@@ -534,7 +527,7 @@ static st_status prepare_report(run_state *s, st_report_pending **rep)
 static st_status make_summary(run_state *s)
 {
     char finished[32];
-    utc_now(finished);
+    st_now_iso8601(finished);
     st_report_input in;
     report_input(s, NULL, finished, &in);
     st_buf b;
@@ -654,7 +647,7 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     memset(&s, 0, sizeof s);
     s.opt = opt;
     s.diags = diags;
-    utc_now(s.started);
+    st_now_iso8601(s.started);
     st_findings_init(&s.findings);
     s.res = st_calloc(1, sizeof *s.res);
     s.fields = st_calloc(opt->ninputs, sizeof *s.fields);

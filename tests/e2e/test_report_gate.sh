@@ -51,6 +51,14 @@ case $help in
     ;;
 esac
 
+# reproducible: with the clock pinned, the same run gives the same report
+SOURCE_DATE_EPOCH=1700000000 expect_rc 0 "$STOCKTAKE" run -q -o "$TMP/r.gpkg" --report "$TMP/rr" "$in"
+mv "$TMP/rr" "$TMP/rr1"
+SOURCE_DATE_EPOCH=1700000000 expect_rc 0 "$STOCKTAKE" run -q -o "$TMP/r.gpkg" --report "$TMP/rr" "$in"
+cmp -s "$TMP/rr1/report.json" "$TMP/rr/report.json" || fail "report.json differs between identical runs"
+cmp -s "$TMP/rr1/report.html" "$TMP/rr/report.html" || fail "report.html differs between identical runs"
+grep -q '"finished": "2023-11-14T22:13:20Z"' "$TMP/rr/report.json" || fail "SOURCE_DATE_EPOCH not honoured"
+
 # errors: exit 2 and nothing written
 expect_rc 2 "$STOCKTAKE" run -q -o "$TMP/d.gpkg" --report "$TMP/rd" "$TMP/missing.geojson"
 [ ! -e "$TMP/d.gpkg" ] || fail "inventory written after an input error"
