@@ -49,8 +49,9 @@ typedef struct st_report_file {
 st_status st_report_hash_files(st_report_file *files, size_t n, st_diags *diags) ST_MUST_CHECK;
 
 /*
-** The files that belong to a layer at 'path' (borrowed): the file itself,
-** and for a .shp its existing .shx/.dbf/.prj/.cpg siblings. Returns owned
+** The files that belong to a layer at 'path' (borrowed): the file itself
+** (FILE for a spec "FILE:LAYER" that is not itself a file), and for a .shp
+** its existing .shx/.dbf/.prj/.cpg siblings. Returns owned
 ** array of owned paths in *paths (*n entries); free each and the array with
 ** st_free. ST_ERR_NOMEM only.
 */

@@ -78,7 +78,7 @@ static const char *const css =
     "th[aria-sort=descending] button::after{content:\" \\25BC\"}\n"
     "td.state{white-space:nowrap}tr.under td.state{color:var(--fail);font-weight:600}\n"
     "tr.ok td.state{color:var(--pass)}\n"
-    ".pass-cell{color:var(--pass);font-weight:600}.fail-cell{color:var(--fail);font-weight:700}\n"
+    ".warn-cell{font-weight:600}.pass-cell{color:var(--pass);font-weight:600}.fail-cell{color:var(--fail);font-weight:700}\n"
     ".cautions{border-left:4px solid var(--fail);background:#fff;padding:8px 16px}\n"
     "@media print{body{background:#fff;font-size:10.5pt}main{max-width:none;padding:0}"
     "nav.toc,.mapbox label,th button::after{display:none}"
@@ -169,6 +169,26 @@ static void fig(st_rout *o, uint64_t n, const char *words)
 
 /* ---- sections ---------------------------------------------------------------------- */
 
+/* One list item per gate condition that held, with by how much. */
+static void gate_items(st_rout *o, const st_audit_gate *g, size_t n, int fails)
+{
+    for (size_t i = 0; i < n; i++) {
+        if (g[i].passed || (g[i].fails != 0) != fails)
+            continue;
+        st_rout_puts(o, "<li><code>");
+        st_rout_esc(o, g[i].statement);
+        st_rout_puts(o, "</code>");
+        if (g[i].detail && strcmp(g[i].detail, g[i].statement ? g[i].statement : "")) {
+            st_rout_puts(o, ": ");
+            st_rout_esc(o, g[i].detail);
+        }
+        if (isfinite(g[i].value) && isfinite(g[i].limit))
+            st_rout_printf(o, " (measured %.4g, limit %.4g: off by %.4g)", g[i].value,
+                           g[i].limit, fabs(g[i].value - g[i].limit));
+        st_rout_puts(o, "</li>");
+    }
+}
+
 static void gate_why(st_rout *o, const st_report_input *in)
 {
     st_audit_gate fallback;
@@ -179,31 +199,23 @@ static void gate_why(st_rout *o, const st_report_input *in)
                         "statement applied and no <code>--fail-on</code>).</p>");
         return;
     }
-    size_t failed = 0;
-    for (size_t i = 0; i < n; i++)
-        failed += !g[i].passed;
-    if (!failed) {
-        st_rout_printf(o, "<p class=\"why\">All %zu gate condition%s held.</p>", n,
-                       n == 1 ? "" : "s");
-        return;
-    }
-    st_rout_puts(o, "<ul class=\"why\">");
+    size_t failed = 0, warned = 0;
     for (size_t i = 0; i < n; i++) {
-        if (g[i].passed)
-            continue;
-        st_rout_puts(o, "<li><code>");
-        st_rout_esc(o, g[i].statement);
-        st_rout_puts(o, "</code>");
-        if (g[i].detail) {
-            st_rout_puts(o, ": ");
-            st_rout_esc(o, g[i].detail);
-        }
-        if (isfinite(g[i].value) && isfinite(g[i].limit))
-            st_rout_printf(o, " (measured %.4g, limit %.4g: off by %.4g)", g[i].value,
-                           g[i].limit, fabs(g[i].value - g[i].limit));
-        st_rout_puts(o, "</li>");
+        failed += !g[i].passed && g[i].fails;
+        warned += !g[i].passed && !g[i].fails;
     }
-    st_rout_puts(o, "</ul>");
+    if (failed) {
+        st_rout_puts(o, "<ul class=\"why\">");
+        gate_items(o, g, n, 1);
+        st_rout_puts(o, "</ul>");
+    } else
+        st_rout_printf(o, "<p class=\"why\">%zu of %zu gate condition%s passed.</p>", n - warned,
+                       n, n == 1 ? "" : "s");
+    if (warned) {
+        st_rout_puts(o, "<p class=\"why\">Warnings (they do not fail the run):</p><ul class=\"why\">");
+        gate_items(o, g, n, 0);
+        st_rout_puts(o, "</ul>");
+    }
 }
 
 static void headline(st_rout *o, const st_report_input *in)
@@ -433,7 +445,8 @@ static void gate_section(st_rout *o, const st_report_input *in)
                     "</tr></thead><tbody>");
     for (size_t i = 0; i < n; i++) {
         st_rout_printf(o, "<tr><td class=\"%s\">%s</td><td><code>",
-                       g[i].passed ? "pass-cell" : "fail-cell", g[i].passed ? "passed" : "FAILED");
+                       g[i].passed ? "pass-cell" : g[i].fails ? "fail-cell" : "warn-cell",
+                       st_rep_gate_word(&g[i]));
         st_rout_esc(o, g[i].statement);
         st_rout_puts(o, "</code></td>");
         td_text(o, g[i].rule);

@@ -445,6 +445,7 @@ static void gate_section(jw *j, const st_report_input *in)
         key(j, "value"), num(j, g[i].value, 6);
         key(j, "limit"), num(j, g[i].limit, 6);
         key(j, "passed"), boolean(j, g[i].passed);
+        key(j, "fails"), boolean(j, g[i].fails);
         key(j, "detail"), str(j, g[i].detail);
         obj_end(j);
     }

@@ -171,6 +171,7 @@ size_t st_rep_gates(const st_report_input *in, st_audit_gate *fallback,
     fallback->value = NAN;
     fallback->limit = NAN;
     fallback->passed = 0;
+    fallback->fails = 1;
     *out = fallback;
     return 1;
 }
@@ -192,6 +193,11 @@ void st_rep_unmapped_at(const st_report_input *in, size_t i, const char **field,
         *value = in->run->unmapped[i].value;
         *count = in->run->unmapped[i].count;
     }
+}
+
+const char *st_rep_gate_word(const st_audit_gate *g)
+{
+    return g->passed ? "passed" : g->fails ? "FAILED" : "warning";
 }
 
 int st_rep_gate_failed(const st_report_input *in)
@@ -326,9 +332,15 @@ st_status st_report_file_siblings(const char *path, char ***paths, size_t *n)
     *n = 0;
     if (!*paths)
         return ST_ERR_NOMEM;
-    (*paths)[(*n)++] = st_strdup(path);
+    /* a layer spec "FILE.gpkg:LAYER" names FILE (when the spec is no file) */
+    const char *colon = strrchr(path, ':');
+    if (colon && access(path, F_OK) != 0)
+        (*paths)[(*n)++] = st_strndup(path, (size_t)(colon - path));
+    else
+        (*paths)[(*n)++] = st_strdup(path);
     if (!(*paths)[0])
         goto nomem;
+    path = (*paths)[0];
     size_t len = strlen(path);
     if (!st_str_ends_with_ci(path, ".shp"))
         return ST_OK;

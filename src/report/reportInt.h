@@ -48,6 +48,9 @@ size_t st_rep_gates(const st_report_input *in, st_audit_gate *fallback,
 size_t st_rep_unmapped_count(const st_report_input *in);
 void st_rep_unmapped_at(const st_report_input *in, size_t i, const char **field,
                         const char **value, uint64_t *count);
+/* "passed", "FAILED" (a fail line that holds) or "warning" (a warn line
+** that holds: reported, does not fail the run). */
+const char *st_rep_gate_word(const st_audit_gate *g);
 /* 1 when the run failed its gate. */
 int st_rep_gate_failed(const st_report_input *in);
 /* Totals over every input layer. */

@@ -26,8 +26,8 @@
 
 #include "reportInt.h"
 
-#define MAP_W 760.0
-#define MAP_H_MAX 560.0
+#define MAP_W 900.0
+#define MAP_H_MAX 620.0
 #define MAP_PAD 10.0
 #define ST_REP_MAP_TOL 0.35
 #define ST_REP_MAP_MAX_LABELS 60
@@ -393,7 +393,7 @@ static void legend(st_rout *o, const char *cls, const char *title, const char *c
 {
     st_rout_printf(o, "<div class=\"legend %s\"><p class=\"legend-title\">", cls);
     st_rout_esc(o, title);
-    st_rout_puts(o, "</p><svg width=\"760\" height=\"34\" viewBox=\"0 0 760 34\" role=\"img\" "
+    st_rout_puts(o, "</p><svg width=\"900\" height=\"34\" viewBox=\"0 0 900 34\" role=\"img\" "
                     "aria-label=\"legend\">");
     double x = 0;
     for (int c = 0; c < ST_REP_CLASSES; c++) {
@@ -485,13 +485,13 @@ void st_rep_svg_findings(st_rout *o, const st_run_result *r)
         st_rout_puts(o, "<p class=\"empty\">No findings.</p>");
         return;
     }
-    const double label_w = 300, bar_w = 380, row = 22, top = 26;
+    const double label_w = 300, bar_w = 520, row = 22, top = 26;
     uint64_t max = 1;
     for (size_t c = 0; c < n; c++)
         if (r->codes[c].count > max)
             max = r->codes[c].count;
     double h = top + row * (double)n + 6;
-    st_rout_printf(o, "<svg class=\"chart\" width=\"760\" height=\"%.0f\" viewBox=\"0 0 760 %.0f\" "
+    st_rout_printf(o, "<svg class=\"chart\" width=\"900\" height=\"%.0f\" viewBox=\"0 0 900 %.0f\" "
                       "role=\"img\" aria-label=\"Findings by code\">", h, h);
     static const st_severity order[3] = {ST_SEV_ERROR, ST_SEV_WARNING, ST_SEV_NOTE};
     for (int k = 0; k < 3; k++)
@@ -547,9 +547,9 @@ void st_rep_svg_provenance(st_rout *o, const st_audit *a)
         st_rout_puts(o, "<p class=\"empty\">No schema fields: the run had no rules.</p>");
         return;
     }
-    const double label_w = 130, bar_w = 560, row = 26, top = 28;
+    const double label_w = 130, bar_w = 700, row = 26, top = 28;
     double h = top + row * a->nfields + 4;
-    st_rout_printf(o, "<svg class=\"chart\" width=\"760\" height=\"%.0f\" viewBox=\"0 0 760 %.0f\" "
+    st_rout_printf(o, "<svg class=\"chart\" width=\"900\" height=\"%.0f\" viewBox=\"0 0 900 %.0f\" "
                       "role=\"img\" aria-label=\"Field completeness by provenance\">", h, h);
     prov_legend(o, 4);
     for (uint32_t i = 0; i < a->nfields; i++) {
@@ -629,11 +629,11 @@ void st_rep_svg_area(st_rout *o, const st_report_dist *d)
         st_rout_puts(o, "<p class=\"empty\">No buildings kept.</p>");
         return;
     }
-    const double x0 = 62, y0 = 214, plot_w = 680, plot_h = 190;
+    const double x0 = 62, y0 = 214, plot_w = 820, plot_h = 190;
     uint64_t max = 0;
     for (int i = 0; i < ST_REPORT_AREA_BINS; i++)
         max = d->area[i] > max ? d->area[i] : max;
-    st_rout_puts(o, "<svg class=\"chart\" width=\"760\" height=\"256\" viewBox=\"0 0 760 256\" "
+    st_rout_puts(o, "<svg class=\"chart\" width=\"900\" height=\"256\" viewBox=\"0 0 900 256\" "
                     "role=\"img\" aria-label=\"Footprint areas\">");
     double k = axes(o, x0, y0, plot_w, plot_h, (double)max, "buildings");
     double bw = plot_w / ST_REPORT_AREA_BINS;
@@ -657,14 +657,14 @@ void st_rep_svg_storeys(st_rout *o, const st_report_dist *d)
         st_rout_puts(o, "<p class=\"empty\">The schema has no storeys field.</p>");
         return;
     }
-    const double x0 = 62, y0 = 232, plot_w = 680, plot_h = 190;
+    const double x0 = 62, y0 = 232, plot_w = 820, plot_h = 190;
     const int nb = ST_REPORT_STOREY_BINS + 1;   /* and "unknown" */
     uint64_t max = d->storeys_unknown;
     for (int i = 0; i < ST_REPORT_STOREY_BINS; i++) {
         uint64_t s = d->storeys_observed[i] + d->storeys_assumed[i];
         max = s > max ? s : max;
     }
-    st_rout_puts(o, "<svg class=\"chart\" width=\"760\" height=\"276\" viewBox=\"0 0 760 276\" "
+    st_rout_puts(o, "<svg class=\"chart\" width=\"900\" height=\"276\" viewBox=\"0 0 900 276\" "
                     "role=\"img\" aria-label=\"Storeys\">");
     static const char *const words[3] = {"observed (source, derived)", "assumed (default, drawn)", "unknown"};
     const char *colours[3] = {st_rep_prov_colours[ST_PROV_SOURCE],

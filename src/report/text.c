@@ -165,7 +165,7 @@ static void gates(st_rout *o, const st_report_input *in)
         st_rout_printf(o, " -- %s", in->run->gate_reason);
     st_rout_puts(o, "\n");
     for (size_t i = 0; in->audit && i < n; i++) {
-        st_rout_printf(o, "  %-6s %s", g[i].passed ? "passed" : "FAILED", g[i].statement);
+        st_rout_printf(o, "  %-7s %s", st_rep_gate_word(&g[i]), g[i].statement);
         if (g[i].rule)
             st_rout_printf(o, " [%s]", g[i].rule);
         if (g[i].detail)

@@ -37,7 +37,7 @@ typedef struct fixture {
     char *field_names[NF];
     st_audit_count unmapped[2];
     st_audit_learned learned[1];
-    st_audit_gate gates[2];
+    st_audit_gate gates[3];
     char *ref_unknown[1];
     st_audit audit;
     st_report_dist dist;
@@ -158,12 +158,14 @@ static fixture *make_fixture(void)
                                        (char *)"URM 60%, RM 40%"};
     x->audit.learned = x->learned;
     x->audit.nlearned = 1;
-    x->gates[0] = (st_audit_gate){(char *)"fail when share(error) > 0.02", (char *)"demo.rules:40",
-                                  0.038, 0.02, 0, (char *)"share(error) = 0.038 > 0.02"};
-    x->gates[1] = (st_audit_gate){(char *)"fail when completeness(occupancy) < 50%",
-                                  (char *)"demo.rules:41", 0.75, 0.5, 1, NULL};
+    x->gates[0] = (st_audit_gate){(char *)"share(error) > 0.02", (char *)"demo.rules:40",
+                                  0.038, 0.02, 0, 1, (char *)"share(error) = 0.038 > 0.02"};
+    x->gates[1] = (st_audit_gate){(char *)"completeness(occupancy) < 50%",
+                                  (char *)"demo.rules:41", 0.75, 0.5, 1, 1, NULL};
+    x->gates[2] = (st_audit_gate){(char *)"observed(material) < 60%", (char *)"demo.rules:42",
+                                  0.492, 0.6, 0, 0, NULL};
     x->audit.gates = x->gates;
-    x->audit.ngates = 2;
+    x->audit.ngates = 3;
     x->audit.gate_failed = 1;
     x->audit.under_ratio = 0.8;
     x->audit.over_ratio = 1.2;
@@ -270,7 +272,7 @@ static void test_json_figures(void **state)
     assert_true(fabs(YAJL_GET_DOUBLE(yajl_tree_get(d1, ap, yajl_t_number)) - 13.0 / 55) < 1e-6);
     assert_true(YAJL_IS_TRUE(jget(root, "gate", "failed", NULL)));
     yajl_val gates = jget(root, "gate", "results", NULL);
-    assert_int_equal(YAJL_GET_ARRAY(gates)->len, 2);
+    assert_int_equal(YAJL_GET_ARRAY(gates)->len, 3);
     yajl_val fields = jget(root, "fields", NULL, NULL);
     assert_int_equal(YAJL_GET_ARRAY(fields)->len, NF);
     assert_int_equal(jint(root, "distributions", "storeys", "unknown"), 40);
@@ -358,6 +360,9 @@ static void test_html_map_and_escaping(void **state)
     assert_non_null(strstr(h, "Gate failed"));
     assert_non_null(strstr(h, "share(error) = 0.038 &gt; 0.02"));
     assert_non_null(strstr(h, "off by 0.018"));
+    /* the warn line that held is a warning, not a failure */
+    assert_non_null(strstr(h, "Warnings (they do not fail the run)"));
+    assert_non_null(strstr(h, "<td class=\"warn-cell\">warning</td>"));
     assert_non_null(strstr(h, "licensed engineers"));
     assert_non_null(strstr(h, "@media print"));
     /* hover figures of QM02 */
@@ -460,8 +465,9 @@ static void test_text_summary(void **state)
     assert_non_null(strstr(t, "    under-mapped: 1 (QM02 40%)\n"));
     assert_non_null(strstr(t, "    over-mapped: 1 (QM04 200%)\n"));
     assert_non_null(strstr(t, "gate: FAILED"));
-    assert_non_null(strstr(t, "FAILED fail when share(error) > 0.02 [demo.rules:40]: share(error) = 0.038 > 0.02"));
-    assert_non_null(strstr(t, "passed fail when completeness(occupancy) < 50%"));
+    assert_non_null(strstr(t, "FAILED  share(error) > 0.02 [demo.rules:40]: share(error) = 0.038 > 0.02"));
+    assert_non_null(strstr(t, "passed  completeness(occupancy) < 50%"));
+    assert_non_null(strstr(t, "warning observed(material) < 60% [demo.rules:42]: measured 0.492, limit 0.6"));
     assert_non_null(strstr(t, "written: out/town.gpkg"));
     assert_non_null(strstr(t, "out/report/report.html"));
     /* occupancy over all: 64 source + 31 default of 130 */
@@ -707,6 +713,14 @@ static void test_siblings(void **state)
     assert_int_equal(st_report_file_siblings("x.geojson", &paths, &n), ST_OK);
     assert_int_equal(n, 1);
     st_free(paths[0]);
+    st_free(paths);
+    /* a layer spec names its file */
+    snprintf(path, sizeof path, "%s/a.shp:a", base);
+    assert_int_equal(st_report_file_siblings(path, &paths, &n), ST_OK);
+    assert_int_equal(n, 3);
+    assert_string_equal(paths[0], shp);
+    for (size_t i = 0; i < n; i++)
+        st_free(paths[i]);
     st_free(paths);
     char cmd[340];
     snprintf(cmd, sizeof cmd, "rm -rf %s", base);
