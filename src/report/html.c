@@ -53,6 +53,8 @@ static const char *const css =
     ".map .district.over{stroke-dasharray:6 3;stroke-width:2.2}\n"
     ".map .labels text{font-size:11px;font-weight:650;text-anchor:middle;paint-order:stroke;"
     "stroke:#fff;stroke-width:3px;stroke-linejoin:round;fill:var(--ink);pointer-events:none}\n"
+    ".map .labels .v{font-weight:400}#mm-r:checked~.mapframe .la,"
+    "#mm-a:checked~.mapframe .lr{display:none}\n"
     ".scalebar path{fill:none;stroke:#33383f;stroke-width:1.5}.scalebar text{font-size:11px}\n"
     ".legend{margin:6px 0}.legend-title{margin:0;font-size:13px;font-weight:600}\n"
     ".legend svg text{font-size:12px;fill:var(--ink)}\n"

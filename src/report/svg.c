@@ -376,8 +376,13 @@ static void districts_layer(st_rout *o, const st_audit *a, const mapframe *m)
                 continue;
             if (span < 7.0 * (double)strlen(d->key))
                 continue;   /* would spill over its neighbours */
-            st_rout_printf(o, "<text x=\"%.1f\" y=\"%.1f\">", lx, ly + 4);
+            /* the key, and under it the figure the map is shaded by */
+            st_rout_printf(o, "<text x=\"%.1f\" y=\"%.1f\">", lx, ly - 1);
             st_rout_esc(o, d->key);
+            st_rout_printf(o, "</text><text class=\"v lr\" x=\"%.1f\" y=\"%.1f\">", lx, ly + 12);
+            st_rout_pct(o, d->ratio, 0);
+            st_rout_printf(o, "</text><text class=\"v la\" x=\"%.1f\" y=\"%.1f\">", lx, ly + 12);
+            st_rout_pct(o, st_rep_assumed_share(a, d), 0);
             st_rout_puts(o, "</text>");
         }
         st_rout_puts(o, "</g>");
