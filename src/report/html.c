@@ -69,7 +69,7 @@ static const char *const css =
     "fill:var(--muted)}\n"
     ".chart .in{text-anchor:middle;font-size:11px}.chart .in.light{fill:#fff}\n"
     ".tablewrap{overflow-x:auto}\n"
-    "table{border-collapse:collapse;font-size:13.5px;font-variant-numeric:tabular-nums;"
+    "table{border-collapse:collapse;font-size:13px;font-variant-numeric:tabular-nums;"
     "margin:6px 0}\n"
     "th,td{padding:4px 7px;border-bottom:1px solid var(--rule);text-align:left;"
     "vertical-align:top}\n"
@@ -367,8 +367,8 @@ static void districts_section(st_rout *o, const st_audit *a)
     static const int num[] = {0, 0, 1, 1, 1, 0, 1, 1, 1, 1, 1, 1, 1};
     st_rout_puts(o, "<p class=\"note\">Click a column heading to sort. Observed and assumed: "
                     "shares of all schema values of the district's buildings (source or "
-                    "derived; default or drawn). Set aside: duplicates and rejected features "
-                    "whose centre lies in the district. Floor area counts buildings with known "
+                    "derived; default or drawn). Set aside: duplicate and rejected features the "
+                    "audit placed in the district. Floor area counts buildings with known "
                     "storeys only.</p><div class=\"tablewrap\"><table class=\"sortable\" "
                     "id=\"district-table\">");
     sortable_head(o, cols, num, sizeof cols / sizeof *cols);
@@ -379,7 +379,7 @@ static void districts_section(st_rout *o, const st_audit *a)
         district_row(o, a, &a->districts[i], NULL);
     st_rout_puts(o, "</tbody><tfoot>");
     if (has_none)
-        district_row(o, a, &a->districts[nd - 1], "outside every district");
+        district_row(o, a, &a->districts[nd - 1], "no district");
     district_row(o, a, &a->total, "all");
     st_rout_puts(o, "</tfoot></table></div>");
     if (a->nref_unknown) {
