@@ -374,9 +374,13 @@ static void districts_layer(st_rout *o, const st_audit *a, const mapframe *m)
             double lx = 0, ly = 0, span = 0;
             if (!d->geom || !label_point(m, d->geom, xy, &lx, &ly, &span))
                 continue;
-            if (span < 7.0 * (double)strlen(d->key))
+            if (span < 7.0 * (double)strlen(d->key) + 12)
                 continue;   /* would spill over its neighbours */
-            /* the key, and under it the figure the map is shaded by */
+            /* on a light chip: the key, and under it the figure the map is
+            ** shaded by */
+            double w = 6.8 * (double)(strlen(d->key) > 4 ? strlen(d->key) : 4) + 10;
+            st_rout_printf(o, "<rect x=\"%.1f\" y=\"%.1f\" width=\"%.1f\" height=\"29\" "
+                              "rx=\"4\"/>", lx - w / 2, ly - 13, w);
             st_rout_printf(o, "<text x=\"%.1f\" y=\"%.1f\">", lx, ly - 1);
             st_rout_esc(o, d->key);
             st_rout_printf(o, "</text><text class=\"v lr\" x=\"%.1f\" y=\"%.1f\">", lx, ly + 12);
