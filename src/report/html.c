@@ -182,13 +182,16 @@ static void gate_items(st_rout *o, const st_audit_gate *g, size_t n, int fails)
         st_rout_puts(o, "<li><code>");
         st_rout_esc(o, g[i].statement);
         st_rout_puts(o, "</code>");
-        if (g[i].detail && strcmp(g[i].detail, g[i].statement ? g[i].statement : "")) {
+        int said = g[i].detail && strcmp(g[i].detail, g[i].statement ? g[i].statement : "");
+        if (said) {
             st_rout_puts(o, ": ");
             st_rout_esc(o, g[i].detail);
         }
-        if (isfinite(g[i].value) && isfinite(g[i].limit))
-            st_rout_printf(o, " (measured %.4g, limit %.4g: off by %.4g)", g[i].value,
-                           g[i].limit, fabs(g[i].value - g[i].limit));
+        if (isfinite(g[i].value) && isfinite(g[i].limit)) {
+            if (!said)
+                st_rout_printf(o, ": measured %.4g, limit %.4g", g[i].value, g[i].limit);
+            st_rout_printf(o, " (off by %.4g)", fabs(g[i].value - g[i].limit));
+        }
         st_rout_puts(o, "</li>");
     }
 }

@@ -359,7 +359,7 @@ static void test_html_map_and_escaping(void **state)
     /* headline, the failed gate and by how much, cautions, print style */
     assert_non_null(strstr(h, "Gate failed"));
     assert_non_null(strstr(h, "share(error) = 0.038 &gt; 0.02"));
-    assert_non_null(strstr(h, "off by 0.018"));
+    assert_non_null(strstr(h, "share(error) = 0.038 &gt; 0.02 (off by 0.018)"));
     /* the warn line that held is a warning, not a failure */
     assert_non_null(strstr(h, "Warnings (they do not fail the run)"));
     assert_non_null(strstr(h, "<td class=\"warn-cell\">warning</td>"));
