@@ -47,7 +47,7 @@ case $help in
     jget "$TMP/rc/report.json" \
         "[(g['value'], g['limit']) for g in r['gate']['results'] if not g['passed']][0]" |
         grep -q ', 0.1)' || fail "gate result without its measured value and limit"
-    grep -q 'measured' "$TMP/rc/report.html" || fail "report.html does not say by how much"
+    grep -q 'off by' "$TMP/rc/report.html" || fail "report.html does not say by how much"
     ;;
 esac
 
