@@ -4,7 +4,9 @@
 # from the output GeoPackage (sqlite3, hashlib); report.html parsed by
 # Python's html.parser (well-formed, nothing outside itself, one map shape
 # per district) and rendered by headless Chromium (Debian's chromium):
-# the DOM after the script ran, no console error, a screenshot.
+# the DOM after the script ran, no console error, a screenshot; then driven
+# over the DevTools protocol (tests/ref/report_browser.py): sorting the
+# district table, switching the map's shading, no script exception.
 # Skips (77) while `run` has no --report, and, after every other check,
 # while it has no --districts (the map needs them).
 . "$ST_TESTS_ROOT/e2e/lib.sh"
@@ -69,4 +71,5 @@ $CHECK png "$TMP/shot.png" 1280 || fail "screenshot"
 has --districts || skip "report checked without districts; run has no --districts yet"
 $PY -c "import json,sys; sys.exit(sum(d['mapped'] for d in json.load(open('$J'))['districts']) == 0)" ||
     fail "the demo districts are not on the map"
+$PY "$ST_TESTS_ROOT/ref/report_browser.py" "$H" || fail "report.html used in Chromium"
 exit 0
