@@ -393,6 +393,111 @@ static void test_html_without_audit(void **state)
     free_fixture(x);
 }
 
+/* The d attribute of the district path with key 'key' (owned by the caller). */
+static char *path_d(const char *html, const char *key)
+{
+    char needle[64];
+    snprintf(needle, sizeof needle, "data-key=\"%s\" d=\"", key);
+    const char *p = strstr(html, needle);
+    if (!p)
+        return NULL;
+    p += strlen(needle);
+    const char *e = strchr(p, '"');
+    return strndup(p, (size_t)(e - p));
+}
+
+/* A multipolygon with a hole is one path of three rings; a district only
+** the reference names is in the table but not on the map. */
+static void test_html_multipolygon_and_absent(void **state)
+{
+    (void)state;
+    fixture *x = make_fixture();
+    st_geom *g = &x->geoms[0];
+    st_geom_clear(g);
+    g->type = ST_GEOM_MULTIPOLYGON;
+    double shell[] = {-126.25, -47.92, -126.24, -47.92, -126.24, -47.91, -126.25, -47.91, -126.25, -47.92};
+    double hole[] = {-126.248, -47.918, -126.248, -47.912, -126.242, -47.912, -126.242, -47.918,
+                     -126.248, -47.918};
+    double island[] = {-126.23, -47.93, -126.229, -47.93, -126.229, -47.929, -126.23, -47.93};
+    assert_int_equal(st_geom_begin_part(g), ST_OK);
+    add_ring(g, shell, 5);
+    add_ring(g, hole, 5);
+    assert_int_equal(st_geom_begin_part(g), ST_OK);
+    add_ring(g, island, 4);
+    x->districts[2].geom = NULL;
+    x->districts[2].ref = ST_REF_ABSENT;
+    x->districts[2].expected = 40;
+    x->districts[2].buildings = 0;
+    x->districts[2].ratio = 0;
+    st_buf b;
+    st_buf_init(&b, 0);
+    assert_int_equal(st_report_html(&x->in, &b), ST_OK);
+    assert_int_equal(count_of(b.data, "<path class=\"district "), 3);
+    char *d = path_d(b.data, "QM01");
+    assert_non_null(d);
+    assert_int_equal(count_of(d, "M"), 3);
+    assert_int_equal(count_of(d, "Z"), 3);
+    free(d);
+    assert_non_null(strstr(b.data, "not in the district layer"));
+    st_buf_clear(&b);
+    assert_int_equal(st_report_text(&x->in, &b), ST_OK);
+    assert_non_null(strstr(b.data, "districts: 3; outside every district: 5 buildings"));
+    st_buf_free(&b);
+    free_fixture(x);
+}
+
+/* Many districts: one shape each, no labels; a ring of 20,000 vertices is
+** simplified to what the screen can show. */
+static void test_html_many_districts(void **state)
+{
+    (void)state;
+    fixture *x = make_fixture();
+    enum { N = 150 };
+    st_audit_district *ds = calloc(N, sizeof *ds);
+    st_geom *gs = calloc(N, sizeof *gs);
+    assert_non_null(ds);
+    assert_non_null(gs);
+    char keys[N][8];
+    for (int i = 0; i < N; i++) {
+        snprintf(keys[i], sizeof keys[i], "D%03d", i);
+        ds[i] = x->districts[0];
+        ds[i].key = keys[i];
+        if (i == 0) {   /* a circle-like ring with 20,000 vertices */
+            st_geom_init(&gs[0]);
+            gs[0].type = ST_GEOM_POLYGON;
+            assert_int_equal(st_geom_begin_part(&gs[0]), ST_OK);
+            assert_int_equal(st_geom_begin_ring(&gs[0]), ST_OK);
+            for (int k = 0; k <= 20000; k++) {
+                double t = 2 * M_PI * (k % 20000) / 20000;
+                assert_int_equal(st_geom_add_xy(&gs[0], -126.0 + 0.05 * cos(t), -47.5 + 0.05 * sin(t)),
+                                 ST_OK);
+            }
+        } else
+            cell(&gs[i], i % 15, i / 15);
+        ds[i].geom = &gs[i];
+    }
+    x->audit.districts = ds;
+    x->audit.ndistricts = N;
+    st_buf b;
+    st_buf_init(&b, 0);
+    assert_int_equal(st_report_html(&x->in, &b), ST_OK);
+    assert_int_equal(count_of(b.data, "<path class=\"district "), N);
+    const char *labels = strstr(b.data, "<g class=\"labels\"");
+    assert_null(labels);
+    char *d = path_d(b.data, "D000");
+    assert_non_null(d);
+    size_t points = count_of(d, "L") + 1;
+    assert_true(points >= 8);        /* still a round shape */
+    assert_true(points < 1000);      /* but not 20,000 points */
+    free(d);
+    st_buf_free(&b);
+    for (int i = 0; i < N; i++)
+        st_geom_clear(&gs[i]);
+    free(gs);
+    free(ds);
+    free_fixture(x);
+}
+
 /* Every start tag of a non-void element is closed in order (a small
 ** well-formedness check; the browser test checks more). */
 static void test_html_tags_balance(void **state)
@@ -775,6 +880,8 @@ int main(void)
         cmocka_unit_test(test_json_invalid_utf8_replaced),
         cmocka_unit_test(test_html_map_and_escaping),
         cmocka_unit_test(test_html_without_audit),
+        cmocka_unit_test(test_html_multipolygon_and_absent),
+        cmocka_unit_test(test_html_many_districts),
         cmocka_unit_test(test_html_tags_balance),
         cmocka_unit_test(test_text_summary),
         cmocka_unit_test(test_palettes_lightness),
