@@ -18,6 +18,8 @@
 #define TOP_CODES 8
 #define LIST_DISTRICTS 6
 #define TOP_UNMAPPED 10
+#define TOP_LEARNED 10
+#define TABLE_DISTRICTS 31   /* 30 and the unassigned bucket */
 
 static void balance(st_rout *o, const st_run_result *r)
 {
@@ -87,6 +89,47 @@ static void district_list(st_rout *o, const st_audit *a, st_ref_state s)
         st_rout_printf(o, "%s)", n > shown ? ", ..." : "");
 }
 
+static int flagged(const st_audit_district *d)
+{
+    return d->ref == ST_REF_UNDER || d->ref == ST_REF_OVER || d->ref == ST_REF_ABSENT;
+}
+
+/* Every district while there are few, else only the flagged ones. */
+static void district_table(st_rout *o, const st_audit *a)
+{
+    int all = a->ndistricts <= TABLE_DISTRICTS;
+    size_t shown = 0;
+    for (size_t i = 0; i < a->ndistricts; i++) {
+        const st_audit_district *d = &a->districts[i];
+        if (!all && !flagged(d))
+            continue;
+        if (!shown++)
+            st_rout_printf(o, "  %-22s %10s %10s %7s  %s\n",
+                           all ? "district" : "district (flagged)", "buildings", "expected",
+                           "ratio", "reference");
+        st_rout_printf(o, "  %-22s %10llu", d->key, (unsigned long long)d->buildings);
+        if (d->expected >= 0)
+            st_rout_printf(o, " %10lld %7.2f  %s", (long long)d->expected, d->ratio,
+                           st_rep_ref_words(d->ref));
+        st_rout_puts(o, "\n");
+    }
+}
+
+static void learned(st_rout *o, const st_audit *a)
+{
+    if (!a->nlearned)
+        return;
+    st_rout_puts(o, "\ndefaults learned from the data:\n");
+    for (size_t i = 0; i < a->nlearned && i < TOP_LEARNED; i++) {
+        const st_audit_learned *l = &a->learned[i];
+        st_rout_printf(o, "  %-12s in %-14s from %llu buildings: %s\n", l->field,
+                       l->district ? l->district : "all", (unsigned long long)l->from_buildings,
+                       l->distribution ? l->distribution : "");
+    }
+    if (a->nlearned > TOP_LEARNED)
+        st_rout_printf(o, "  ... and %zu more in the report\n", a->nlearned - TOP_LEARNED);
+}
+
 static void districts(st_rout *o, const st_audit *a)
 {
     size_t counts[5] = {0};
@@ -107,6 +150,7 @@ static void districts(st_rout *o, const st_audit *a)
         st_rout_printf(o, "; outside every district: %llu buildings",
                        (unsigned long long)none->buildings);
     st_rout_puts(o, "\n");
+    district_table(o, a);
     if (counts[ST_REF_OK] + counts[ST_REF_UNDER] + counts[ST_REF_OVER] == 0)
         return;
     st_rout_printf(o, "  against the reference: %zu within thresholds\n", counts[ST_REF_OK]);
@@ -161,7 +205,7 @@ static void gates(st_rout *o, const st_report_input *in)
     st_rout_printf(o, "\ngate: %s", failed ? "FAILED" : "passed");
     if (!n)
         st_rout_puts(o, in->run->gate_reason ? "" : " (no gate condition was evaluated)");
-    if (!in->audit && in->run->gate_reason)
+    if (in->run->gate_reason)
         st_rout_printf(o, " -- %s", in->run->gate_reason);
     st_rout_puts(o, "\n");
     for (size_t i = 0; in->audit && i < n; i++) {
@@ -185,6 +229,7 @@ st_status st_report_text(const st_report_input *in, st_buf *out)
     if (in->audit) {
         districts(&o, in->audit);
         fields(&o, in->audit);
+        learned(&o, in->audit);
     }
     unmapped(&o, in);
     gates(&o, in);

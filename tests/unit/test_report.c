@@ -569,7 +569,9 @@ static void test_text_summary(void **state)
     assert_non_null(strstr(t, "against the reference: 1 within thresholds\n"));
     assert_non_null(strstr(t, "    under-mapped: 1 (QM02 40%)\n"));
     assert_non_null(strstr(t, "    over-mapped: 1 (QM04 200%)\n"));
-    assert_non_null(strstr(t, "gate: FAILED"));
+    assert_non_null(strstr(t, "gate: FAILED -- share(error) > 0.02\n"));
+    assert_non_null(strstr(t, "  QM02                           20         50    0.40  under-mapped\n"));
+    assert_non_null(strstr(t, "  material     in QM01           from 40 buildings: URM 60%, RM 40%\n"));
     assert_non_null(strstr(t, "FAILED  share(error) > 0.02 [demo.rules:40]: share(error) = 0.038 > 0.02"));
     assert_non_null(strstr(t, "passed  completeness(occupancy) < 50%"));
     assert_non_null(strstr(t, "warning observed(material) < 60% [demo.rules:42]: measured 0.492, limit 0.6"));
