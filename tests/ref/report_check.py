@@ -181,8 +181,17 @@ def recompute_districts(rep, db):
         for f, src in zip(fields, row[3:]):
             src = src or "unknown"
             p["fields"][f][src] = p["fields"][f].get(src, 0) + 1
+    aside = {}
+    if "district" in columns(db, "set_aside"):
+        for key, status, n in db.execute(
+                "SELECT coalesce(district, 'none'), status, count(*) FROM set_aside GROUP BY 1, 2"):
+            aside.setdefault(key, {})[status] = n
     total = 0
     for d in rep["districts"]:
+        if aside:
+            got = aside.get(d["key"], {})
+            expect("duplicates in district " + d["key"], d["duplicate"], got.get("duplicate", 0))
+            expect("rejected in district " + d["key"], d["rejected"], got.get("rejected", 0))
         p = per.pop(d["key"], {"buildings": 0, "area": 0.0, "repaired": 0,
                                "fields": {f: {} for f in fields}})
         expect("buildings of district " + d["key"], d["buildings"], p["buildings"])
