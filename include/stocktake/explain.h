@@ -97,7 +97,8 @@ st_status st_explain_rule_text(const char *rule, char **out) ST_MUST_CHECK;
 
 /* Append the explanation as text for a terminal (UTF-8, lines end in \n). */
 st_status st_explain_render_text(const st_explanation *e, st_buf *out) ST_MUST_CHECK;
-/* Append the explanation as one JSON object (docs/explain.md). */
+/* Append the explanation as one JSON object (layout: docs/stocktake.1,
+** section explain, and explain/explain_render.c). */
 st_status st_explain_render_json(const st_explanation *e, st_buf *out) ST_MUST_CHECK;
 
 #endif
