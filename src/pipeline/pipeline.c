@@ -377,6 +377,30 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     return rc;
 }
 
+/* The unmapped values as rows of (field, value, count) for the inventory. */
+static st_status write_unmapped(run_state *s, st_inventory *inv)
+{
+    const st_run_result *r = s->res;
+    const char **rows = st_calloc(3 * r->nunmapped + 1, sizeof *rows);
+    char **counts = st_calloc(r->nunmapped + 1, sizeof *counts);
+    st_status rc = rows && counts ? ST_OK : ST_ERR_NOMEM;
+    for (size_t i = 0; rc == ST_OK && i < r->nunmapped; i++) {
+        counts[i] = st_strdup_printf("%llu", (unsigned long long)r->unmapped[i].count);
+        rows[3 * i] = r->unmapped[i].field;
+        rows[3 * i + 1] = r->unmapped[i].value;
+        rows[3 * i + 2] = counts[i];
+        if (!counts[i])
+            rc = ST_ERR_NOMEM;
+    }
+    if (rc == ST_OK)
+        rc = st_inventory_write_unmapped(inv, rows, r->nunmapped);
+    for (size_t i = 0; counts && i < r->nunmapped; i++)
+        st_free(counts[i]);
+    st_free(counts);
+    st_free(rows);
+    return rc;
+}
+
 static st_status write_inventory(run_state *s)
 {
     size_t nl = s->res->nlayers;
@@ -413,6 +437,8 @@ static st_status write_inventory(run_state *s)
         rc = st_inventory_write_findings(inv, &s->findings);
     if (rc == ST_OK)
         rc = write_run_info(s, inv);
+    if (rc == ST_OK)
+        rc = write_unmapped(s, inv);
     if (rc == ST_OK)
         rc = st_inventory_commit(inv);
     st_inventory_close(inv);

@@ -11,6 +11,18 @@ in=$DATA/explain/tiny.geojson
 expect_rc 0 "$STOCKTAKE" run -q -r "$rules" -o "$TMP/out.gpkg" "$in"
 expect_rc 0 "$STOCKTAKE" run -q -r "$rules" -o "$TMP/out.geojson" "$in"
 
+# The run's list of unmapped values, machine-readable: the barn's
+# building=barn matches no line of tiny.rules (read with GDAL).
+$PY - "$TMP/out.gpkg" "$TMP/out.unmapped.csv" <<'PY' || fail "unmapped table"
+import csv, sys
+from osgeo import ogr
+ds = ogr.Open(sys.argv[1])
+got = [(f.GetField("field"), f.GetField("value"), f.GetField("count")) for f in ds.GetLayerByName("unmapped")]
+assert got == [("occupancy", "barn", 1)], got
+rows = list(csv.DictReader(open(sys.argv[2], encoding="utf-8")))
+assert [(r["field"], r["value"], int(r["count"])) for r in rows] == got, rows
+PY
+
 line_of() { grep -n -F -e "$1" "$rules" | head -n 1 | cut -d: -f1; }
 src_line=$(line_of "house, apartments")
 der_line=$(line_of "from levels")
