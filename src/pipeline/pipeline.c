@@ -75,8 +75,33 @@ static char *unique_layer_name(run_state *s, size_t upto, const char *base)
     }
 }
 
+/* GeoJSON types a field by its first value: a later "PB+2" in a field that
+** began with 2 makes it text, so that the inventory does not declare a
+** number column for it (GDAL reads such a value back as 0). 'first' is the
+** layer's first feature. */
+static void demote_numeric_fields(run_state *s, size_t l, size_t first)
+{
+    st_fields *fl = &s->fields[l];
+    for (size_t i = first; i < s->nfeatures; i++) {
+        const st_feature *f = s->features[i];
+        for (uint32_t k = 0; k < f->nvalues && k < fl->count; k++) {
+            st_field *fd = &fl->items[k];
+            const char *v = f->values[k];
+            if ((fd->type != ST_FIELD_INTEGER && fd->type != ST_FIELD_REAL) || !v || !*v)
+                continue;
+            char *end;
+            (void)strtod(v, &end);
+            if (*end) {
+                fd->type = ST_FIELD_TEXT;
+                fd->width = 0;
+            }
+        }
+    }
+}
+
 static st_status read_layer(run_state *s, size_t l)
 {
+    size_t first = s->nfeatures;
     st_read_options ro = ST_READ_OPTIONS_DEFAULT;
     ro.crs_override = s->opt->crs_override;
     st_reader *r = NULL;
@@ -118,6 +143,8 @@ static st_status read_layer(run_state *s, size_t l)
     }
     if (rc == ST_OK)
         rc = st_fields_copy(&s->fields[l], st_reader_fields(r));
+    if (rc == ST_OK)
+        demote_numeric_fields(s, l, first);
     st_reader_close(r);
     return rc;
 }
