@@ -32,6 +32,7 @@
 #define ST_REPORT_HTML_MAX_CODES 30
 #define ST_REPORT_HTML_MAX_UNMAPPED 150
 #define ST_REPORT_HTML_MAX_LEARNED 150
+#define ST_REPORT_HTML_MAX_DISTRICTS 5000   /* rows of the district table */
 
 /* One file the run read, with its hash for reproduction and audit. */
 typedef struct st_report_file {

@@ -380,13 +380,18 @@ static void districts_section(st_rout *o, const st_audit *a)
     st_rout_puts(o, "<tbody>");
     size_t nd = a->ndistricts;
     int has_none = nd && !strcmp(a->districts[nd - 1].key, "none") && !a->districts[nd - 1].geom;
-    for (size_t i = 0; i + (has_none ? 1 : 0) < nd; i++)
+    size_t rows = nd - (has_none ? 1 : 0);
+    size_t shown = rows < ST_REPORT_HTML_MAX_DISTRICTS ? rows : ST_REPORT_HTML_MAX_DISTRICTS;
+    for (size_t i = 0; i < shown; i++)
         district_row(o, a, &a->districts[i], NULL);
     st_rout_puts(o, "</tbody><tfoot>");
     if (has_none)
         district_row(o, a, &a->districts[nd - 1], "no district");
     district_row(o, a, &a->total, "all");
     st_rout_puts(o, "</tfoot></table></div>");
+    if (shown < rows)
+        st_rout_printf(o, "<p class=\"note\">The first %zu of %zu districts; report.json has "
+                          "every one.</p>", shown, rows);
     if (a->nref_unknown) {
         st_rout_puts(o, "<p>Reference keys with no district in the layer: ");
         for (size_t i = 0; i < a->nref_unknown; i++) {
@@ -597,7 +602,13 @@ st_status st_report_html(const st_report_input *in, st_buf *out)
     st_rout o = {out, ST_OK};
     st_rout_puts(&o, "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
                      "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
-                     "<title>Inventory quality report</title>\n<style>\n");
+                     "<title>Inventory quality report");
+    if (in->noutputs) {
+        const char *base = strrchr(in->outputs[0], '/');
+        st_rout_puts(&o, " \xE2\x80\x93 ");
+        st_rout_esc(&o, base ? base + 1 : in->outputs[0]);
+    }
+    st_rout_puts(&o, "</title>\n<style>\n");
     st_rout_puts(&o, css);
     for (int c = 0; c < ST_REP_CLASSES; c++)
         st_rout_printf(&o, "#mm-r:checked~.mapframe .r%d{fill:%s}"
