@@ -446,18 +446,18 @@ static void test_html_multipolygon_and_absent(void **state)
     free_fixture(x);
 }
 
-/* Many districts: one shape each, no labels; a ring of 20,000 vertices is
-** simplified to what the screen can show. */
+/* Many districts: one shape each, no labels, the table capped; a ring of
+** 20,000 vertices is simplified to what the screen can show. */
 static void test_html_many_districts(void **state)
 {
     (void)state;
     fixture *x = make_fixture();
-    enum { N = 150 };
+    enum { N = ST_REPORT_HTML_MAX_DISTRICTS + 10 };
     st_audit_district *ds = calloc(N, sizeof *ds);
     st_geom *gs = calloc(N, sizeof *gs);
     assert_non_null(ds);
     assert_non_null(gs);
-    char keys[N][8];
+    static char keys[N][8];
     for (int i = 0; i < N; i++) {
         snprintf(keys[i], sizeof keys[i], "D%03d", i);
         ds[i] = x->districts[0];
@@ -473,7 +473,7 @@ static void test_html_many_districts(void **state)
                                  ST_OK);
             }
         } else
-            cell(&gs[i], i % 15, i / 15);
+            cell(&gs[i], i % 100, i / 100);
         ds[i].geom = &gs[i];
     }
     x->audit.districts = ds;
@@ -484,6 +484,8 @@ static void test_html_many_districts(void **state)
     assert_int_equal(count_of(b.data, "<path class=\"district "), N);
     const char *labels = strstr(b.data, "<g class=\"labels\"");
     assert_null(labels);
+    assert_int_equal(count_of(b.data, "<tr class=\"ok\">"), ST_REPORT_HTML_MAX_DISTRICTS);
+    assert_non_null(strstr(b.data, "The first 5000 of 5010 districts"));
     char *d = path_d(b.data, "D000");
     assert_non_null(d);
     size_t points = count_of(d, "L") + 1;
