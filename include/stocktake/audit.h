@@ -73,7 +73,8 @@ typedef struct st_audit_gate {
     char *statement;       /* the gate as written */
     char *rule;            /* "file:line" or "--fail-on" */
     double value, limit;   /* measured value and the threshold */
-    int passed;
+    int passed;            /* 1: the condition does not hold */
+    int fails;             /* 1: a `fail` line or --fail-on; 0: `warn` */
     char *detail;          /* e.g. "share(error) = 0.034 > 0.02" */
 } st_audit_gate;
 

@@ -24,6 +24,8 @@ typedef struct st_run_options {
     const char *crs_override;    /* --crs for layers without a CRS, or NULL */
     st_fail_on fail_on;          /* findings at or above this fail the gate */
     const char *command_line;    /* recorded in run_info */
+    const char *report_dir;      /* --report DIR: report.json and report.html
+                                    written there (report.h), or NULL */
     /* Progress: called now and then from the calling thread; may be NULL. */
     void (*progress)(void *ud, const char *stage, long long done, long long total);
     void *progress_ud;
@@ -66,6 +68,8 @@ typedef struct st_run_result {
     size_t nunmapped;
     char **outputs;              /* files written */
     size_t noutputs;
+    char *summary;               /* owned: the terminal summary (report.h) for
+                                    the CLI to print, or NULL */
 } st_run_result;
 
 /*

@@ -1,6 +1,7 @@
 /*
 ** cli/cmd_run.c -- `stocktake run`: parse options, run the pipeline, print
-** the terminal summary, choose the exit code.
+** the terminal summary the library rendered (report.h), choose the exit
+** code: 0 done, 1 gate failed (outputs written), 2 error (nothing written).
 */
 #include <stdlib.h>
 #include <string.h>
@@ -18,11 +19,13 @@ void st_help_run(FILE *out)
             "layer together and write the inventory.\n"
             "\n"
             "  -o, --output OUT     OUT.gpkg (layers buildings, set_aside, findings,\n"
-            "                       run_info) or OUT.geojson/.geojsonl/.csv/.shp (one\n"
-            "                       file per layer: OUT.set_aside.EXT, OUT.findings.EXT,\n"
-            "                       OUT.run_info.csv)\n"
+            "                       run_info, unmapped) or OUT.geojson/.geojsonl/.csv/\n"
+            "                       .shp (one file per layer: OUT.set_aside.EXT,\n"
+            "                       OUT.findings.EXT, OUT.run_info.csv, OUT.unmapped.csv)\n"
             "  -r, --rules FILE...  rule files (schema, footprint thresholds, map,\n"
             "                       derive, check); see docs/rules.md\n"
+            "  --report DIR         write DIR/report.json and DIR/report.html (a\n"
+            "                       self-contained page: map, charts, tables)\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
             "  --max-memory SIZE    stop early (exit 2) rather than need more memory\n"
             "                       than SIZE (512M, 4G ...); default: 75%% of\n"
@@ -37,7 +40,8 @@ void st_help_run(FILE *out)
             "\n"
             "Every feature read ends up once in buildings (ok, repaired) or in\n"
             "set_aside (duplicate, rejected); the summary shows the balance.\n"
-            "exit: 0 done; 1 done but the gate failed; 2 error, nothing written.\n");
+            "exit: 0 done; 1 done but the gate failed (outputs written, the report\n"
+            "says which gate and by how much); 2 error, nothing written.\n");
 }
 
 typedef struct run_args {
@@ -71,7 +75,9 @@ static int parse_args(int argc, char **argv, run_args *a)
             while (i + 1 < argc && argv[i + 1][0] != '-' &&
                    st_str_ends_with_ci(argv[i + 1], ".rules"))
                 a->rules[a->opt.nrules++] = argv[++i];
-        } else if (!strcmp(arg, "--crs") && has_next)
+        } else if (!strcmp(arg, "--report") && has_next)
+            a->opt.report_dir = argv[++i];
+        else if (!strcmp(arg, "--crs") && has_next)
             a->opt.crs_override = argv[++i];
         else if (!strcmp(arg, "--max-memory") && has_next) {
             if (!st_cli_parse_size(argv[++i], &a->opt.max_memory))
@@ -100,39 +106,6 @@ static int parse_args(int argc, char **argv, run_args *a)
     a->opt.inputs = a->inputs;
     a->opt.rules = a->rules;
     return ST_EXIT_OK;
-}
-
-static void print_summary(const st_run_result *r, const char *output)
-{
-    fprintf(stderr, "\n%-24s %9s %9s %9s %9s %9s\n", "layer", "read", "buildings",
-            "repaired", "duplicate", "rejected");
-    for (size_t l = 0; l < r->nlayers; l++) {
-        const st_run_layer *L = &r->layers[l];
-        int balanced = L->read == L->kept + L->duplicate + L->rejected;
-        fprintf(stderr, "%-24s %9llu %9llu %9llu %9llu %9llu%s\n", L->name,
-                (unsigned long long)L->read, (unsigned long long)L->kept,
-                (unsigned long long)L->repaired, (unsigned long long)L->duplicate,
-                (unsigned long long)L->rejected, balanced ? "" : "  UNBALANCED");
-    }
-    fprintf(stderr, "read = buildings + set aside (duplicate + rejected) for every layer\n");
-    if (r->ncodes)
-        fprintf(stderr, "\nfindings: %llu error, %llu warning, %llu note; most frequent:\n",
-                (unsigned long long)r->findings[ST_SEV_ERROR],
-                (unsigned long long)r->findings[ST_SEV_WARNING],
-                (unsigned long long)r->findings[ST_SEV_NOTE]);
-    for (size_t c = 0; c < r->ncodes && c < 10; c++)
-        fprintf(stderr, "  %-28s %-8s %llu\n", r->codes[c].code,
-                r->codes[c].severity == ST_SEV_ERROR ? "error"
-                : r->codes[c].severity == ST_SEV_WARNING ? "warning" : "note",
-                (unsigned long long)r->codes[c].count);
-    if (r->nunmapped)
-        fprintf(stderr, "\nunmapped source values (add map lines for these first):\n");
-    for (size_t u = 0; u < r->nunmapped && u < 10; u++)
-        fprintf(stderr, "  %-12s %-28s %llu\n", r->unmapped[u].field, r->unmapped[u].value,
-                (unsigned long long)r->unmapped[u].count);
-    fprintf(stderr, "\ngate: %s%s%s\n", r->gate_failed ? "FAILED" : "passed",
-            r->gate_reason ? " -- " : "", r->gate_reason ? r->gate_reason : "");
-    fprintf(stderr, "inventory: %s\n", output);
 }
 
 int st_cmd_run(int argc, char **argv)
@@ -165,8 +138,8 @@ int st_cmd_run(int argc, char **argv)
         fprintf(stderr, "stocktake run: stopped (%s); nothing was written\n", st_status_name(st));
         rc = ST_EXIT_ERROR;
     } else {
-        if (!a.quiet)
-            print_summary(res, a.opt.output);
+        if (!a.quiet && res->summary)
+            fputs(res->summary, stderr);
         rc = res->gate_failed ? ST_EXIT_GATE : ST_EXIT_OK;
     }
     st_run_result_free(res);

@@ -370,9 +370,12 @@ static st_status register_layer(st_writer *w, const char *table, st_geom_type ty
         "adding to gpkg_contents");
     if (rc != ST_OK)
         return rc;
-    char when[32];
-    st_now_iso8601(when);   /* SOURCE_DATE_EPOCH when set: reproducible files */
-    sqlite3_bind_text(s, 4, when, -1, SQLITE_TRANSIENT);
+    /* SOURCE_DATE_EPOCH when set (reproducible files); the spec's form
+    ** has milliseconds: 2026-12-02T04:10:00.000Z */
+    char when[32], stamp[40];
+    st_now_iso8601(when);
+    snprintf(stamp, sizeof stamp, "%.*s.000Z", (int)strlen(when) - 1, when);
+    sqlite3_bind_text(s, 4, stamp, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(s, 1, table, -1, SQLITE_STATIC);
     sqlite3_bind_text(s, 2, geom ? "features" : "attributes", -1, SQLITE_STATIC);
     if (geom)

@@ -1,6 +1,7 @@
 /*
 ** pipeline/pipeline.c -- one run, stage after stage, data flowing one way:
-** read -> footprint -> neighbours -> rules -> write.
+** read -> footprint -> neighbours -> rules -> write (inventory, then the
+** report).
 **
 ** Input:  st_run_options (input layers, output path, gate threshold).
 ** Output: the inventory (inventory.h) and an st_run_result with the
@@ -25,6 +26,7 @@
 #include "stocktake/neighbours.h"
 #include "stocktake/pipeline.h"
 #include "guardInt.h"
+#include "stocktake/report.h"
 #include "stocktake/rules.h"
 #include "pipelineInt.h"
 
@@ -41,7 +43,16 @@ typedef struct run_state {
     st_footprint_config fcfg;
     st_neighbours_config ncfg;
     st_memory_budget budget;     /* --max-memory and the estimate so far */
+    char started[32];            /* UTC, ISO 8601 */
+    st_report_dist dist;         /* kept buildings, filled while writing */
 } run_state;
+
+/* The files a run read, hashed for the report (role and path per entry). */
+typedef struct report_files {
+    st_report_file *items;
+    size_t count, cap;
+    char **paths;                /* owned copies the items point into */
+} report_files;
 
 static void progress(run_state *s, const char *stage, long long done, long long total)
 {
@@ -79,8 +90,33 @@ static char *unique_layer_name(run_state *s, size_t upto, const char *base)
     }
 }
 
+/* GeoJSON types a field by its first value: a later "PB+2" in a field that
+** began with 2 makes it text, so that the inventory does not declare a
+** number column for it (GDAL reads such a value back as 0). 'first' is the
+** layer's first feature. */
+static void demote_numeric_fields(run_state *s, size_t l, size_t first)
+{
+    st_fields *fl = &s->fields[l];
+    for (size_t i = first; i < s->nfeatures; i++) {
+        const st_feature *f = s->features[i];
+        for (uint32_t k = 0; k < f->nvalues && k < fl->count; k++) {
+            st_field *fd = &fl->items[k];
+            const char *v = f->values[k];
+            if ((fd->type != ST_FIELD_INTEGER && fd->type != ST_FIELD_REAL) || !v || !*v)
+                continue;
+            char *end;
+            (void)strtod(v, &end);
+            if (*end) {
+                fd->type = ST_FIELD_TEXT;
+                fd->width = 0;
+            }
+        }
+    }
+}
+
 static st_status read_layer(run_state *s, size_t l)
 {
+    size_t first = s->nfeatures;
     st_read_options ro = ST_READ_OPTIONS_DEFAULT;
     ro.crs_override = s->opt->crs_override;
     st_reader *r = NULL;
@@ -124,6 +160,8 @@ static st_status read_layer(run_state *s, size_t l)
     }
     if (rc == ST_OK)
         rc = st_fields_copy(&s->fields[l], st_reader_fields(r));
+    if (rc == ST_OK)
+        demote_numeric_fields(s, l, first);
     st_reader_close(r);
     return rc;
 }
@@ -387,6 +425,177 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     return rc;
 }
 
+/* Storeys field of the schema, or -1 (no rules). */
+static int32_t storeys_field(const run_state *s)
+{
+    return s->rules ? st_rules_field_find(s->rules, "storeys") : -1;
+}
+
+static void report_files_free(report_files *rf)
+{
+    for (size_t i = 0; i < rf->count; i++)
+        st_free(rf->paths[i]);
+    st_free(rf->paths);
+    st_free(rf->items);
+    memset(rf, 0, sizeof *rf);
+}
+
+/* Add 'path' (taken: freed here on failure or when already listed). */
+static st_status add_file(report_files *rf, const char *role, char *path)
+{
+    if (!path)
+        return ST_ERR_NOMEM;
+    for (size_t i = 0; i < rf->count; i++)
+        if (!strcmp(rf->paths[i], path)) {
+            st_free(path);
+            return ST_OK;
+        }
+    if (rf->count == rf->cap) {
+        size_t cap = rf->cap ? 2 * rf->cap : 8;
+        st_report_file *it = st_realloc(rf->items, cap * sizeof *it);
+        if (it)
+            rf->items = it;
+        char **p = it ? st_realloc(rf->paths, cap * sizeof *p) : NULL;
+        if (!p) {
+            st_free(path);
+            return ST_ERR_NOMEM;
+        }
+        rf->paths = p;
+        rf->cap = cap;
+    }
+    rf->paths[rf->count] = path;
+    memset(&rf->items[rf->count], 0, sizeof rf->items[rf->count]);
+    rf->items[rf->count].role = role;
+    rf->items[rf->count].path = path;
+    rf->count++;
+    return ST_OK;
+}
+
+/* A layer's file and, for a shapefile, its sibling files. */
+static st_status add_layer_files(report_files *rf, const char *role, const char *path)
+{
+    char **sib = NULL;
+    size_t n = 0;
+    st_status rc = st_report_file_siblings(path, &sib, &n);
+    for (size_t i = 0; i < n; i++) {
+        if (rc == ST_OK)
+            rc = add_file(rf, role, sib[i]);
+        else
+            st_free(sib[i]);
+    }
+    st_free(sib);
+    return rc;
+}
+
+static st_status collect_files(run_state *s, report_files *rf)
+{
+    st_status rc = ST_OK;
+    for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++)
+        rc = add_layer_files(rf, "input", s->res->layers[l].path);
+    for (size_t i = 0; rc == ST_OK && i < s->opt->nrules; i++)
+        rc = add_file(rf, "rules", st_strdup(s->opt->rules[i]));
+    for (size_t i = 0; rc == ST_OK && s->rules && i < st_rules_table_count(s->rules); i++)
+        rc = add_file(rf, "defaults table", st_strdup(st_rules_table(s->rules, i)->path));
+    if (rc == ST_OK)
+        rc = st_report_hash_files(rf->items, rf->count, s->diags);
+    return rc;
+}
+
+/* res->outputs: the inventory, then the report files when asked for. */
+static st_status set_outputs(run_state *s)
+{
+    st_run_result *r = s->res;
+    r->outputs = st_calloc(3, sizeof *r->outputs);
+    if (!r->outputs)
+        return ST_ERR_NOMEM;
+    r->outputs[r->noutputs++] = st_strdup(s->opt->output);
+    if (s->opt->report_dir) {
+        const char *d = s->opt->report_dir;
+        size_t dl = strlen(d);
+        while (dl > 1 && d[dl - 1] == '/')
+            dl--;
+        r->outputs[r->noutputs++] = st_strdup_printf("%.*s/report.json", (int)dl, d);
+        r->outputs[r->noutputs++] = st_strdup_printf("%.*s/report.html", (int)dl, d);
+    }
+    for (size_t i = 0; i < r->noutputs; i++)
+        if (!r->outputs[i])
+            return ST_ERR_NOMEM;
+    return ST_OK;
+}
+
+static void report_input(run_state *s, const report_files *rf, const char *finished,
+                         st_report_input *in)
+{
+    memset(in, 0, sizeof *in);
+    in->run = s->res;
+    in->audit = NULL;
+    in->dist = &s->dist;
+    in->files = rf ? rf->items : NULL;
+    in->nfiles = rf ? rf->count : 0;
+    in->command_line = s->opt->command_line;
+    in->started = s->started;
+    in->finished = finished;
+    in->outputs = (const char *const *)s->res->outputs;
+    in->noutputs = s->res->noutputs;
+}
+
+/* Render report.json and report.html under temporary names. */
+static st_status prepare_report(run_state *s, st_report_pending **rep)
+{
+    report_files rf;
+    memset(&rf, 0, sizeof rf);
+    progress(s, "report", 0, 1);
+    st_status rc = collect_files(s, &rf);
+    if (rc == ST_OK) {
+        char finished[32];
+        st_now_iso8601(finished);
+        st_report_input in;
+        report_input(s, &rf, finished, &in);
+        rc = st_report_prepare(&in, s->opt->report_dir, s->diags, rep);
+    }
+    report_files_free(&rf);
+    return rc;
+}
+
+static st_status make_summary(run_state *s)
+{
+    char finished[32];
+    st_now_iso8601(finished);
+    st_report_input in;
+    report_input(s, NULL, finished, &in);
+    st_buf b;
+    st_buf_init(&b, ST_REPORT_MAX_BYTES);
+    st_status rc = st_report_text(&in, &b);
+    if (rc == ST_OK)
+        s->res->summary = st_buf_take(&b);
+    st_buf_free(&b);
+    return rc == ST_OK && !s->res->summary ? ST_ERR_NOMEM : rc;
+}
+
+/* The unmapped values as rows of (field, value, count) for the inventory. */
+static st_status write_unmapped(run_state *s, st_inventory *inv)
+{
+    const st_run_result *r = s->res;
+    const char **rows = st_calloc(3 * r->nunmapped + 1, sizeof *rows);
+    char **counts = st_calloc(r->nunmapped + 1, sizeof *counts);
+    st_status rc = rows && counts ? ST_OK : ST_ERR_NOMEM;
+    for (size_t i = 0; rc == ST_OK && i < r->nunmapped; i++) {
+        counts[i] = st_strdup_printf("%llu", (unsigned long long)r->unmapped[i].count);
+        rows[3 * i] = r->unmapped[i].field;
+        rows[3 * i + 1] = r->unmapped[i].value;
+        rows[3 * i + 2] = counts[i];
+        if (!counts[i])
+            rc = ST_ERR_NOMEM;
+    }
+    if (rc == ST_OK)
+        rc = st_inventory_write_unmapped(inv, rows, r->nunmapped);
+    for (size_t i = 0; counts && i < r->nunmapped; i++)
+        st_free(counts[i]);
+    st_free(counts);
+    st_free(rows);
+    return rc;
+}
+
 static st_status write_inventory(run_state *s)
 {
     size_t nl = s->res->nlayers;
@@ -415,6 +624,8 @@ static st_status write_inventory(run_state *s)
         aside = select_features(s, 0, &ns);
         rc = kept && aside ? ST_OK : ST_ERR_NOMEM;
     }
+    for (size_t i = 0; rc == ST_OK && i < nk; i++)
+        st_report_dist_add(&s->dist, kept[i], storeys_field(s));
     if (rc == ST_OK)
         rc = st_inventory_write_buildings(inv, kept, nk, NULL);
     if (rc == ST_OK)
@@ -424,7 +635,19 @@ static st_status write_inventory(run_state *s)
     if (rc == ST_OK)
         rc = write_run_info(s, inv);
     if (rc == ST_OK)
+        rc = write_unmapped(s, inv);
+    /* The report is rendered and written to temporary names before the
+    ** inventory is renamed into place, so an error in either leaves
+    ** nothing behind; the two renames after that do not fail in practice
+    ** (same folders, files already written). */
+    st_report_pending *rep = NULL;
+    if (rc == ST_OK && s->opt->report_dir)
+        rc = prepare_report(s, &rep);
+    if (rc == ST_OK)
         rc = st_inventory_commit(inv);
+    if (rc == ST_OK && rep)
+        rc = st_report_commit(rep, s->diags);
+    st_report_pending_free(rep);
     st_inventory_close(inv);
     st_free(kept);
     st_free(aside);
@@ -463,8 +686,13 @@ static st_status run_stages(run_state *s)
     }
     if (rc == ST_OK) {
         decide_gate(s);
-        rc = write_inventory(s);
+        rc = set_outputs(s);
     }
+    /* the summary first: once the outputs are in place nothing may fail */
+    if (rc == ST_OK)
+        rc = make_summary(s);
+    if (rc == ST_OK)
+        rc = write_inventory(s);
     return rc;
 }
 
@@ -478,6 +706,7 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     memset(&s, 0, sizeof s);
     s.opt = opt;
     s.diags = diags;
+    st_now_iso8601(s.started);
     st_findings_init(&s.findings);
     s.res = st_calloc(1, sizeof *s.res);
     s.fields = st_calloc(opt->ninputs, sizeof *s.fields);
@@ -531,5 +760,6 @@ void st_run_result_free(st_run_result *r)
     for (size_t i = 0; i < r->noutputs; i++)
         st_free(r->outputs[i]);
     st_free(r->outputs);
+    st_free(r->summary);
     st_free(r);
 }
