@@ -125,6 +125,8 @@ def main():
                 ids.add(sid)
             for k, v in (srow.items() if values else ()):
                 ok = [c for c in (k, "src_" + k) if c in orow]
+                if not ok and k == "id":
+                    ok = ["source_id"]      # GDAL shows a GeoJSON string "id" as a field
                 if not ok:
                     raise SystemExit(f"{spec}: attribute {k!r} missing from the output")
                 if not same_value(v, orow[ok[-1]]):
