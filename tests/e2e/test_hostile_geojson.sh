@@ -117,6 +117,22 @@ for v in 1e308 -1e308 1e400 1e-400 123456789012345678901234567890; do
     rm -rf "$HOUT"; mkdir -p "$HOUT"
 done
 
+# ---- broken rings are set aside as read, in every output format ---------------------------
+# (a two-point ring made a CSV run stop: GEOS cannot build it for the WKT).
+# Shapefile output is left out: its set_aside layer cannot be declared yet
+# (docs/reliability.md, open points).
+printf '{"type":"FeatureCollection","features":[{"type":"Feature","properties":{"n":1},"geometry":{"type":"Polygon","coordinates":[[[0,0],[0.001,0],[0.001,0.001],[0,0.001]]]}},{"type":"Feature","properties":{"n":2},"geometry":{"type":"Polygon","coordinates":[[[0,0],[0.001,0]]]}},{"type":"Feature","properties":{"n":3},"geometry":{"type":"MultiPolygon","coordinates":[[[[5,5]]],[[[6,6],[6.001,6],[6.001,6.001],[6,6]]]]}}]}\n' >"$IN/rings.geojson"
+for ext in gpkg geojson geojsonl csv; do
+    h_case "geojson unclosed and two-point rings, output .$ext" "$IN/rings.geojson"
+    h_run go "" "$STOCKTAKE" run -q -o "$HOUT/inv.$ext" "$IN/rings.geojson"
+    case $ext in csv)
+        grep -q '"POLYGON ((0 0, 0.001 0))"' "$HOUT/inv.set_aside.csv" ||
+            h_fail "the two-point ring is not in set_aside as read" ;; *)
+        $BAL "$HOUT/inv.$ext" "$IN/rings.geojson" >"$TMP/bal" 2>&1 || { cat "$TMP/bal" >&2; h_fail "balance"; } ;;
+    esac
+    rm -rf "$HOUT"; mkdir -p "$HOUT"
+done
+
 # ---- invalid UTF-8 and NUL bytes in attributes: kept, replaced by U+FFFD ------------------
 printf '{"type":"FeatureCollection","features":[{"type":"Feature","id":"a\377b","properties":{"name":"caf\351 \300\200 \355\240\200 end","k\377":"v"},"geometry":{"type":"Polygon","coordinates":[[[0,0],[0.001,0],[0.001,0.001],[0,0]]]}}]}\n' >"$IN/utf8.geojson"
 h_case "geojson invalid UTF-8 in attributes" "$IN/utf8.geojson"
