@@ -353,7 +353,8 @@ static st_status count_codes(run_state *s)
         if (g->severity > r->codes[c].severity)
             r->codes[c].severity = g->severity;
     }
-    qsort(r->codes, r->ncodes, sizeof *r->codes, by_count);
+    if (r->ncodes > 1)   /* qsort of a NULL array is undefined, even of 0 items */
+        qsort(r->codes, r->ncodes, sizeof *r->codes, by_count);
     return ST_OK;
 }
 
