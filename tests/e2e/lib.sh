@@ -31,3 +31,11 @@ ogr_count() {
 
 # sha FILE: content hash, to prove inputs were not modified.
 sha() { sha256sum "$1" | cut -d' ' -f1; }
+
+# expect_balanced OUT INPUT...: the run's output balances against its inputs
+# (tests/e2e/balance.py, with GDAL: read = buildings + set_aside per layer,
+# every bid and source id once, attributes back unchanged).
+expect_balanced() {
+    $PY "$ST_TESTS_ROOT/e2e/balance.py" "$@" >"$TMP/balance" 2>&1 ||
+        { cat "$TMP/balance" >&2; fail "balance broken: $*"; }
+}

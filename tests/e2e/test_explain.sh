@@ -10,6 +10,8 @@ rules=$DATA/explain/tiny.rules
 in=$DATA/explain/tiny.geojson
 expect_rc 0 "$STOCKTAKE" run -q -r "$rules" -o "$TMP/out.gpkg" "$in"
 expect_rc 0 "$STOCKTAKE" run -q -r "$rules" -o "$TMP/out.geojson" "$in"
+expect_balanced "$TMP/out.gpkg" "$in"
+expect_balanced "$TMP/out.geojson" "$in"
 
 # The run's list of unmapped values, machine-readable: the barn's
 # building=barn matches no line of tiny.rules (read with GDAL).

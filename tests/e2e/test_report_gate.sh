@@ -13,6 +13,7 @@ jget() { $PY -c "import json,sys; r=json.load(open(sys.argv[1])); print($2)" "$1
 
 # passed: no gate at all
 expect_rc 0 "$STOCKTAKE" run -o "$TMP/a.gpkg" --report "$TMP/ra" "$in"
+expect_balanced "$TMP/a.gpkg" "$in"
 [ -f "$TMP/ra/report.json" ] && [ -f "$TMP/ra/report.html" ] || fail "no report"
 [ "$(jget "$TMP/ra/report.json" "r['gate']['failed']")" = False ] || fail "gate.failed on a passing run"
 expect_stderr "^gate: passed"
@@ -27,6 +28,7 @@ expect_rc 0 "$STOCKTAKE" run -q -o "$TMP/q.gpkg" --report "$TMP/rq" "$in"
 
 # failed: --fail-on error (the null geometry and the bowtie are errors)
 expect_rc 1 "$STOCKTAKE" run -o "$TMP/b.gpkg" --report "$TMP/rb" --fail-on error "$in"
+expect_balanced "$TMP/b.gpkg" "$in"
 [ -f "$TMP/b.gpkg" ] || fail "a failed gate still writes the inventory"
 [ -f "$TMP/rb/report.html" ] || fail "a failed gate still writes the report"
 expect_stderr "^gate: FAILED"
