@@ -11,6 +11,8 @@
 
 #include <stdint.h>
 #include "stocktake/core.h"
+#include "stocktake/audit.h"
+#include "stocktake/defaults.h"
 #include "stocktake/finding.h"
 
 typedef enum { ST_FAIL_ON_NONE = 0, ST_FAIL_ON_WARNING, ST_FAIL_ON_ERROR } st_fail_on;
@@ -22,6 +24,17 @@ typedef struct st_run_options {
     const char *crs_override;    /* --crs for layers without a CRS, or NULL */
     st_fail_on fail_on;          /* findings at or above this fail the gate */
     const char *command_line;    /* recorded in run_info */
+    const char *const *rules;    /* -r rule files (nrules, may be 0): schema,
+                                    footprint settings, map/derive/check,
+                                    defaults, gates */
+    size_t nrules;
+    const char *districts;       /* --districts layer, or NULL (no placement) */
+    const char *district_key;    /* --district-key, or NULL (place.h) */
+    const char *region_key;      /* --region-key, or NULL */
+    const char *reference;       /* --reference CSV of expected counts, or NULL */
+    st_fill_mode fill;           /* --fill most-likely | draw */
+    uint64_t seed;               /* --seed for the draw */
+    unsigned threads;            /* -j: threads for placement (0 = 1) */
     /* Progress: called now and then from the calling thread; may be NULL. */
     void (*progress)(void *ud, const char *stage, long long done, long long total);
     void *progress_ud;
@@ -51,6 +64,7 @@ typedef struct st_run_result {
     char *gate_reason;           /* owned, why the gate failed, or NULL */
     char **outputs;              /* files written */
     size_t noutputs;
+    st_audit *audit;             /* owned: the completeness audit (audit.h) */
 } st_run_result;
 
 /*

@@ -2,6 +2,7 @@
 ** cli/cmd_run.c -- `stocktake run`: parse options, run the pipeline, print
 ** the terminal summary, choose the exit code.
 */
+#include <errno.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -21,6 +22,17 @@ void st_help_run(FILE *out)
             "                       run_info) or OUT.geojson/.geojsonl/.csv/.shp (one\n"
             "                       file per layer: OUT.set_aside.EXT, OUT.findings.EXT,\n"
             "                       OUT.run_info.csv)\n"
+            "  -r, --rules FILE     rule file (repeatable): schema, map, derive, check,\n"
+            "                       defaults, gate (docs/rules.md)\n"
+            "  --districts FILE     district polygons (any readable layer); each building\n"
+            "                       goes to the district covering its point on surface\n"
+            "  --district-key FIELD the districts' key (default: the first field filled\n"
+            "                       with a distinct value on every district)\n"
+            "  --region-key FIELD   the districts' parent region, for region defaults\n"
+            "  --reference CSV      expected buildings per district: key, count columns\n"
+            "  --fill MODE          most-likely (default) or draw: how defaults fill\n"
+            "  --seed N             seed of the draw (default 1)\n"
+            "  -j, --threads N      threads for placement (default 1)\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
@@ -38,8 +50,23 @@ void st_help_run(FILE *out)
 typedef struct run_args {
     st_run_options opt;
     const char **inputs;
+    const char **rules;
     int quiet;
 } run_args;
+
+/* A whole decimal number in [0, max]; 0 if it is not one. */
+static int parse_count(const char *s, unsigned long long max, unsigned long long *out)
+{
+    char *end = NULL;
+    if (!s[0] || s[0] == '-' || s[0] == '+')
+        return 0;
+    errno = 0;
+    unsigned long long v = strtoull(s, &end, 10);
+    if (errno || *end || v > max)
+        return 0;
+    *out = v;
+    return 1;
+}
 
 static void on_progress(void *ud, const char *stage, long long done, long long total)
 {
@@ -51,8 +78,11 @@ static void on_progress(void *ud, const char *stage, long long done, long long t
 static int parse_args(int argc, char **argv, run_args *a)
 {
     a->inputs = calloc((size_t)argc, sizeof *a->inputs);
-    if (!a->inputs)
+    a->rules = calloc((size_t)argc, sizeof *a->rules);
+    if (!a->inputs || !a->rules)
         return st_cli_usage_error("run", "out of memory");
+    a->opt.seed = 1;
+    a->opt.threads = 1;
     for (int i = 1; i < argc; i++) {
         const char *arg = argv[i];
         int has_next = i + 1 < argc;
@@ -60,6 +90,36 @@ static int parse_args(int argc, char **argv, run_args *a)
             a->opt.output = argv[++i];
         else if (!strcmp(arg, "--crs") && has_next)
             a->opt.crs_override = argv[++i];
+        else if ((!strcmp(arg, "-r") || !strcmp(arg, "--rules")) && has_next)
+            a->rules[a->opt.nrules++] = argv[++i];
+        else if (!strcmp(arg, "--districts") && has_next)
+            a->opt.districts = argv[++i];
+        else if (!strcmp(arg, "--district-key") && has_next)
+            a->opt.district_key = argv[++i];
+        else if (!strcmp(arg, "--region-key") && has_next)
+            a->opt.region_key = argv[++i];
+        else if (!strcmp(arg, "--reference") && has_next)
+            a->opt.reference = argv[++i];
+        else if (!strcmp(arg, "--fill") && has_next) {
+            const char *v = argv[++i];
+            if (!strcmp(v, "most-likely"))
+                a->opt.fill = ST_FILL_MOST_LIKELY;
+            else if (!strcmp(v, "draw"))
+                a->opt.fill = ST_FILL_DRAW;
+            else
+                return st_cli_usage_error("run", "--fill takes most-likely or draw, not '%s'", v);
+        } else if (!strcmp(arg, "--seed") && has_next) {
+            unsigned long long v;
+            if (!parse_count(argv[++i], UINT64_MAX, &v))
+                return st_cli_usage_error("run", "--seed takes a whole number, not '%s'", argv[i]);
+            a->opt.seed = v;
+        } else if ((!strcmp(arg, "-j") || !strcmp(arg, "--threads")) && has_next) {
+            unsigned long long v;
+            if (!parse_count(argv[++i], 64, &v) || v == 0)
+                return st_cli_usage_error("run", "-j takes a number of threads from 1 to 64, not '%s'",
+                                          argv[i]);
+            a->opt.threads = (unsigned)v;
+        }
         else if (!strcmp(arg, "--fail-on") && has_next) {
             const char *v = argv[++i];
             if (!strcmp(v, "warn") || !strcmp(v, "warning"))
@@ -77,9 +137,12 @@ static int parse_args(int argc, char **argv, run_args *a)
     }
     if (!a->opt.output)
         return st_cli_usage_error("run", "say where to write the inventory with -o OUT");
+    if ((a->opt.district_key || a->opt.region_key || a->opt.reference) && !a->opt.districts)
+        return st_cli_usage_error("run", "--district-key, --region-key and --reference need --districts");
     if (!a->opt.ninputs)
         return st_cli_usage_error("run", "give at least one input layer");
     a->opt.inputs = a->inputs;
+    a->opt.rules = a->rules;
     return ST_EXIT_OK;
 }
 
@@ -118,6 +181,7 @@ int st_cmd_run(int argc, char **argv)
     int rc = parse_args(argc, argv, &a);
     if (rc != ST_EXIT_OK) {
         free(a.inputs);
+        free(a.rules);
         return rc;
     }
     st_progress p;
@@ -148,5 +212,6 @@ int st_cmd_run(int argc, char **argv)
     st_diags_free(&d);
     st_buf_free(&cmd);
     free(a.inputs);
+    free(a.rules);
     return rc;
 }

@@ -1,8 +1,10 @@
 /*
 ** pipeline/pipeline.c -- one run, stage after stage, data flowing one way:
-** read -> footprint -> neighbours -> write.
+** read -> footprint -> neighbours -> place -> rules (map, derive, check)
+** -> defaults -> audit -> write.
 **
-** Input:  st_run_options (input layers, output path, gate threshold).
+** Input:  st_run_options (input layers, output path, rules, districts,
+**         reference counts, fill mode and seed, gate threshold).
 ** Output: the inventory (inventory.h) and an st_run_result with the
 **         balance per layer and the findings per code.
 ** Errors: any input or output error stops the run before anything is
@@ -22,6 +24,8 @@
 #include "stocktake/io.h"
 #include "stocktake/neighbours.h"
 #include "stocktake/pipeline.h"
+#include "stocktake/place.h"
+#include "stocktake/rules.h"
 
 typedef struct run_state {
     const st_run_options *opt;
@@ -32,6 +36,8 @@ typedef struct run_state {
     st_run_result *res;
     st_findings findings;
     st_geos *gx;
+    st_rules *rules;             /* -r, or NULL */
+    st_districts *districts;     /* --districts, or NULL */
 } run_state;
 
 static void progress(run_state *s, const char *stage, long long done, long long total)
@@ -168,6 +174,65 @@ static st_status compare_neighbours(run_state *s)
     progress(s, "neighbours", 0, (long long)s->nfeatures);
     st_status rc = st_neighbours_run(&cfg, &in, s->gx, &s->findings, s->diags);
     st_free(names);
+    return rc;
+}
+
+/* The rule files' footprint settings onto the geometry stage's config. A
+** setting the stage does not know is a warning, not an error: lint has
+** already said what it thinks of the name. */
+static void footprint_settings(run_state *s, st_footprint_config *cfg)
+{
+    for (size_t i = 0; s->rules && i < st_rules_setting_count(s->rules); i++) {
+        const st_rule_setting *r = st_rules_setting(s->rules, i);
+        char err[200] = "";
+        st_status rc;
+        if (r->has_number)
+            rc = st_footprint_config_set(cfg, r->name, r->number, r->unit[0] ? r->unit : NULL,
+                                         r->has_severity ? &r->severity : NULL, err, sizeof err);
+        else if (r->word)
+            rc = st_footprint_config_set_word(cfg, r->name, r->word, err, sizeof err);
+        else {
+            rc = ST_ERR_USAGE;
+            snprintf(err, sizeof err, "'%s' needs a value", r->name);
+        }
+        if (rc != ST_OK)
+            st_diags_add(s->diags, ST_SEV_WARNING, ST_OK, NULL,
+                         "%s: footprint setting not applied: %s", r->rule, err);
+    }
+}
+
+static st_status place_buildings(run_state *s)
+{
+    progress(s, "place", 0, (long long)s->nfeatures);
+    st_place_stats stats;
+    return st_place_features(s->districts, s->features, s->nfeatures, s->opt->threads,
+                             ST_SEV_WARNING, &s->findings, s->diags, &stats);
+}
+
+static int is_kept(const st_feature *f)
+{
+    return f->status == ST_STATUS_OK || f->status == ST_STATUS_REPAIRED;
+}
+
+/* map -> derive -> check on every kept building. */
+static st_status apply_rules(run_state *s)
+{
+    st_rules_ctx *ctx = NULL;
+    st_status rc = st_rules_ctx_new(s->rules, &ctx);
+    uint32_t layer = UINT32_MAX;
+    for (size_t i = 0; rc == ST_OK && i < s->nfeatures; i++) {
+        st_feature *f = s->features[i];
+        if (!is_kept(f))
+            continue;
+        if (f->layer != layer) {
+            st_rules_ctx_reset_layer(ctx);
+            layer = f->layer;
+        }
+        rc = st_rules_apply(ctx, f, &s->fields[f->layer], &s->findings);
+        if ((i & 0x3FFF) == 0)
+            progress(s, "rules", (long long)i, (long long)s->nfeatures);
+    }
+    st_rules_ctx_free(ctx);
     return rc;
 }
 
@@ -339,7 +404,16 @@ static st_status write_inventory(run_state *s)
     size_t nk = 0, ns = 0;
     st_feature **kept = NULL, **aside = NULL;
     progress(s, "write", 0, (long long)s->nfeatures);
-    st_status rc = st_inventory_open(s->opt->output, layers, (uint32_t)nl, NULL, 0,
+    uint32_t nschema = s->rules ? st_rules_field_count(s->rules) : 0;
+    const char **schema = st_calloc(nschema ? nschema : 1, sizeof *schema);
+    if (!schema) {
+        st_free(layers);
+        return ST_ERR_NOMEM;
+    }
+    for (uint32_t i = 0; i < nschema; i++)
+        schema[i] = st_rules_field(s->rules, i)->name;
+    const char *const *names = s->districts ? st_districts_keys(s->districts) : NULL;
+    st_status rc = st_inventory_open(s->opt->output, layers, (uint32_t)nl, schema, nschema,
                                      s->diags, &inv);
     if (rc == ST_OK) {
         kept = select_features(s, 1, &nk);
@@ -347,7 +421,7 @@ static st_status write_inventory(run_state *s)
         rc = kept && aside ? ST_OK : ST_ERR_NOMEM;
     }
     if (rc == ST_OK)
-        rc = st_inventory_write_buildings(inv, kept, nk, NULL);
+        rc = st_inventory_write_buildings(inv, kept, nk, names);
     if (rc == ST_OK)
         rc = st_inventory_write_set_aside(inv, aside, ns);
     if (rc == ST_OK)
@@ -360,19 +434,39 @@ static st_status write_inventory(run_state *s)
     st_free(kept);
     st_free(aside);
     st_free(layers);
+    st_free(schema);
+    return rc;
+}
+
+static st_status load_inputs(run_state *s)
+{
+    st_status rc = ST_OK;
+    if (s->opt->nrules)
+        rc = st_rules_load(s->opt->rules, s->opt->nrules, s->diags, &s->rules);
+    if (rc == ST_OK && s->opt->districts) {
+        st_districts_options d = {s->opt->districts, s->opt->district_key,
+                                  s->opt->region_key, NULL};
+        progress(s, "districts", 0, 0);
+        rc = st_districts_load(&d, s->diags, &s->districts);
+    }
+    for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
+        rc = read_layer(s, l);
     return rc;
 }
 
 static st_status run_stages(run_state *s)
 {
-    st_status rc = ST_OK;
-    for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
-        rc = read_layer(s, l);
+    st_status rc = load_inputs(s);
     st_footprint_config cfg = st_footprint_config_default();
+    footprint_settings(s, &cfg);
     if (rc == ST_OK)
         rc = check_footprints(s, &cfg);
     if (rc == ST_OK)
         rc = compare_neighbours(s);
+    if (rc == ST_OK && s->districts)
+        rc = place_buildings(s);
+    if (rc == ST_OK && s->rules)
+        rc = apply_rules(s);
     if (rc == ST_OK) {
         sort_findings(&s->findings);
         tally(s);
@@ -414,6 +508,8 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     st_free(s.fields);
     st_findings_free(&s.findings);
     st_geos_free(s.gx);
+    st_districts_free(s.districts);
+    st_rules_free(s.rules);
     if (rc != ST_OK) {
         if (rc == ST_ERR_NOMEM)
             st_diags_add(diags, ST_SEV_ERROR, rc, NULL, "out of memory");
