@@ -13,11 +13,18 @@
 **              source attributes; geometry as read
 **   findings   bid code severity message; point geometry where known
 **   run_info   key value
+**   districts  district region buildings repaired duplicate rejected
+**              footprint_m2 floor_m2 floor_known expected ratio reference
+**              findings_error findings_warning findings_note polygon_repair
+**              [<field>_source _derived _default _drawn _unknown]... (shares
+**              of the district's buildings, 0..1); the district polygon;
+**              one row per district of the audit, "none" last (no polygon)
 ** Nothing appears at the output path(s) before st_inventory_commit().
 */
 #ifndef STOCKTAKE_INVENTORY_H
 #define STOCKTAKE_INVENTORY_H
 
+#include "stocktake/audit.h"
 #include "stocktake/core.h"
 #include "stocktake/feature.h"
 #include "stocktake/finding.h"
@@ -53,6 +60,10 @@ st_status st_inventory_write_findings(st_inventory *inv,
 /* Key/value pairs (2 * n strings, borrowed). */
 st_status st_inventory_write_run_info(st_inventory *inv, const char *const *kv,
                                       size_t n) ST_MUST_CHECK;
+/* The `districts` layer from the audit (borrowed): one row per district in
+** the audit's order (audit.h). For single-layer formats it goes to the
+** sibling OUT.districts.EXT. */
+st_status st_inventory_write_districts(st_inventory *inv, const st_audit *a) ST_MUST_CHECK;
 /* Rename every output into place. */
 st_status st_inventory_commit(st_inventory *inv) ST_MUST_CHECK;
 /* Close; without a commit every temporary output is removed. NULL ok. */

@@ -65,6 +65,8 @@ typedef struct st_run_result {
     char **outputs;              /* files written */
     size_t noutputs;
     st_audit *audit;             /* owned: the completeness audit (audit.h) */
+    st_districts *districts;     /* owned, or NULL: the district layer the
+                                    audit's polygons point into */
 } st_run_result;
 
 /*

@@ -18,6 +18,8 @@
 #include <string.h>
 #include <time.h>
 
+#include "stocktake/audit.h"
+#include "stocktake/defaults.h"
 #include "stocktake/footprint.h"
 #include "stocktake/geomx.h"
 #include "stocktake/inventory.h"
@@ -38,6 +40,9 @@ typedef struct run_state {
     st_geos *gx;
     st_rules *rules;             /* -r, or NULL */
     st_districts *districts;     /* --districts, or NULL */
+    st_reference *reference;     /* --reference, or NULL */
+    st_defaults *defaults;       /* with rules */
+    st_unmapped *unmapped;       /* with rules: unmapped source values */
 } run_state;
 
 static void progress(run_state *s, const char *stage, long long done, long long total)
@@ -232,8 +237,51 @@ static st_status apply_rules(run_state *s)
         if ((i & 0x3FFF) == 0)
             progress(s, "rules", (long long)i, (long long)s->nfeatures);
     }
+    if (rc == ST_OK)
+        rc = st_unmapped_new(&s->unmapped);
+    if (rc == ST_OK)
+        rc = st_unmapped_merge(s->unmapped, st_rules_ctx_unmapped(ctx));
     st_rules_ctx_free(ctx);
     return rc;
+}
+
+/* Where a defaults table is wrong the run stops before any real work. */
+static st_status prepare_defaults(run_state *s)
+{
+    size_t n = s->districts ? st_districts_count(s->districts) : 0;
+    const char **region = st_calloc(n ? n : 1, sizeof *region);
+    if (!region)
+        return ST_ERR_NOMEM;
+    for (size_t i = 0; i < n; i++)
+        region[i] = st_districts_get(s->districts, i)->region;
+    st_defaults_places pl = {s->districts ? st_districts_keys(s->districts) : NULL, region, n};
+    st_status rc = st_defaults_new(s->rules, &pl, s->diags, &s->defaults);
+    st_free(region);
+    return rc;
+}
+
+/* Learn from the observed values, then fill what is still unknown. */
+static st_status fill_defaults(run_state *s)
+{
+    progress(s, "defaults", 0, (long long)s->nfeatures);
+    st_status rc = st_defaults_learn(s->defaults, s->features, s->nfeatures);
+    st_rules_ctx *ctx = NULL;
+    if (rc == ST_OK)
+        rc = st_rules_ctx_new(s->rules, &ctx);
+    for (size_t i = 0; rc == ST_OK && i < s->nfeatures; i++)
+        if (is_kept(s->features[i]))
+            rc = st_defaults_apply(s->defaults, ctx, s->features[i], s->opt->fill, s->opt->seed);
+    st_rules_ctx_free(ctx);
+    return rc;
+}
+
+static st_status run_audit(run_state *s, st_audit **out)
+{
+    int fail_on = s->opt->fail_on == ST_FAIL_ON_WARNING ? ST_SEV_WARNING
+                : s->opt->fail_on == ST_FAIL_ON_ERROR ? ST_SEV_ERROR : -1;
+    st_audit_input in = {s->features, s->nfeatures, &s->findings, s->districts, s->rules,
+                         s->defaults, s->unmapped, s->reference, fail_on};
+    return st_audit_compute(&in, s->diags, out);
 }
 
 /* Findings in building order (stable: a stage's own order is kept). */
@@ -322,18 +370,18 @@ static st_status count_codes(run_state *s)
     return ST_OK;
 }
 
-static void decide_gate(run_state *s)
+/* The gate as the audit judged it: the first failing line says why. */
+static st_status decide_gate(run_state *s)
 {
     st_run_result *r = s->res;
-    st_fail_on on = s->opt->fail_on;
-    uint64_t n = on == ST_FAIL_ON_WARNING ? r->findings[ST_SEV_WARNING] + r->findings[ST_SEV_ERROR]
-               : on == ST_FAIL_ON_ERROR ? r->findings[ST_SEV_ERROR] : 0;
-    if (!n)
-        return;
-    r->gate_failed = 1;
-    r->gate_reason = st_strdup_printf("--fail-on %s: %llu finding(s) at or above that severity",
-                                      on == ST_FAIL_ON_WARNING ? "warn" : "error",
-                                      (unsigned long long)n);
+    const st_audit *a = r->audit;
+    r->gate_failed = a->gate_failed;
+    for (size_t i = 0; i < a->ngates && !r->gate_reason; i++) {
+        const st_audit_gate *g = &a->gates[i];
+        if (!g->passed && g->fails && !(r->gate_reason = st_strdup_printf("%s (%s)", g->detail, g->rule)))
+            return ST_ERR_NOMEM;
+    }
+    return ST_OK;
 }
 
 /* kept (or set-aside) features in bid order */
@@ -359,7 +407,7 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     struct tm tmv;
     strftime(when, sizeof when, "%Y-%m-%dT%H:%M:%SZ", gmtime_r(&t, &tmv));
     size_t nl = s->res->nlayers;
-    size_t n = 3 + nl;
+    size_t n = 3 + nl + 3;
     const char **kv = st_calloc(2 * n, sizeof *kv);
     char **owned = st_calloc(nl + 1, sizeof *owned);
     st_status rc = kv && owned ? ST_OK : ST_ERR_NOMEM;
@@ -383,6 +431,28 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
                 rc = ST_ERR_NOMEM;
         }
     }
+    char seed[32];
+    snprintf(seed, sizeof seed, "%llu", (unsigned long long)s->opt->seed);
+    size_t k = 3 + nl;
+    if (rc == ST_OK && s->districts) {
+        kv[2 * k] = "districts";
+        owned[nl] = st_strdup_printf(
+            "%s (%s): key %s, region %s, %zu districts, %zu polygon(s) repaired",
+            st_districts_path(s->districts), st_districts_crs(s->districts),
+            st_districts_key_field(s->districts),
+            st_districts_region_field(s->districts) ? st_districts_region_field(s->districts)
+                                                    : "none",
+            st_districts_count(s->districts), st_districts_repaired(s->districts));
+        kv[2 * k++ + 1] = owned[nl];
+        rc = owned[nl] ? ST_OK : ST_ERR_NOMEM;
+    }
+    if (s->rules) {
+        kv[2 * k] = "fill";
+        kv[2 * k++ + 1] = st_fill_mode_name(s->opt->fill);
+        kv[2 * k] = "seed";
+        kv[2 * k++ + 1] = seed;
+    }
+    n = k;
     if (rc == ST_OK)
         rc = st_inventory_write_run_info(inv, kv, n);
     for (size_t l = 0; owned && l < nl; l++)
@@ -426,6 +496,8 @@ static st_status write_inventory(run_state *s)
         rc = st_inventory_write_set_aside(inv, aside, ns);
     if (rc == ST_OK)
         rc = st_inventory_write_findings(inv, &s->findings);
+    if (rc == ST_OK && s->districts)
+        rc = st_inventory_write_districts(inv, s->res->audit);
     if (rc == ST_OK)
         rc = write_run_info(s, inv);
     if (rc == ST_OK)
@@ -449,6 +521,10 @@ static st_status load_inputs(run_state *s)
         progress(s, "districts", 0, 0);
         rc = st_districts_load(&d, s->diags, &s->districts);
     }
+    if (rc == ST_OK && s->opt->reference)
+        rc = st_reference_load(s->opt->reference, s->diags, &s->reference);
+    if (rc == ST_OK && s->rules)
+        rc = prepare_defaults(s);
     for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
         rc = read_layer(s, l);
     return rc;
@@ -467,15 +543,19 @@ static st_status run_stages(run_state *s)
         rc = place_buildings(s);
     if (rc == ST_OK && s->rules)
         rc = apply_rules(s);
+    if (rc == ST_OK && s->rules)
+        rc = fill_defaults(s);
     if (rc == ST_OK) {
         sort_findings(&s->findings);
         tally(s);
         rc = count_codes(s);
     }
-    if (rc == ST_OK) {
-        decide_gate(s);
+    if (rc == ST_OK)
+        rc = run_audit(s, &s->res->audit);
+    if (rc == ST_OK)
+        rc = decide_gate(s);
+    if (rc == ST_OK)
         rc = write_inventory(s);
-    }
     return rc;
 }
 
@@ -508,8 +588,14 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     st_free(s.fields);
     st_findings_free(&s.findings);
     st_geos_free(s.gx);
-    st_districts_free(s.districts);
+    st_defaults_free(s.defaults);
+    st_unmapped_free(s.unmapped);
+    st_reference_free(s.reference);
     st_rules_free(s.rules);
+    if (s.res)
+        s.res->districts = s.districts;   /* the audit's polygons live there */
+    else
+        st_districts_free(s.districts);
     if (rc != ST_OK) {
         if (rc == ST_ERR_NOMEM)
             st_diags_add(diags, ST_SEV_ERROR, rc, NULL, "out of memory");
@@ -533,6 +619,8 @@ void st_run_result_free(st_run_result *r)
     st_free(r->layers);
     st_free(r->codes);
     st_free(r->gate_reason);
+    st_audit_free(r->audit);
+    st_districts_free(r->districts);
     for (size_t i = 0; i < r->noutputs; i++)
         st_free(r->outputs[i]);
     st_free(r->outputs);
