@@ -55,6 +55,10 @@
 #define ST_FLAG_REPLACED        (1u << 17)  /* f->geom replaced; f->source_geom holds the source */
 #define ST_FLAG_GEOS_ERROR      (1u << 18)  /* GEOS could not process the geometry */
 
+/* Append the names of the set flags, comma-separated ("invalid,repaired"),
+** to 'out'; nothing when no flag is set. */
+st_status st_footprint_flag_names(uint32_t flags, st_buf *out) ST_MUST_CHECK;
+
 /* ---- finding codes ------------------------------------------------------ */
 
 /* Every finding this stage writes. Names ("geom.null", ...) through

@@ -1,6 +1,6 @@
 /*
 ** stocktake/pipeline.h -- one whole run: read every input, check and repair
-** footprints, compare neighbours, (place, apply rules, audit), write the
+** footprints, compare neighbours, place, apply rules and defaults, audit, write the
 ** inventory. The CLI's `run` fills st_run_options and prints the result.
 **
 ** Nothing lost: every feature read ends up exactly once in `buildings` or
@@ -14,20 +14,19 @@
 #include "stocktake/audit.h"
 #include "stocktake/defaults.h"
 #include "stocktake/finding.h"
+#include "stocktake/place.h"
 
 typedef enum { ST_FAIL_ON_NONE = 0, ST_FAIL_ON_WARNING, ST_FAIL_ON_ERROR } st_fail_on;
 
 typedef struct st_run_options {
     const char *const *inputs;   /* layer specs ("a.shp", "b.gpkg:layer") */
     size_t ninputs;
+    const char *const *rules;    /* rule files, loaded as one set (may be 0) */
+    size_t nrules;
     const char *output;          /* OUT.gpkg | .geojson | .geojsonl | .csv | .shp */
     const char *crs_override;    /* --crs for layers without a CRS, or NULL */
     st_fail_on fail_on;          /* findings at or above this fail the gate */
     const char *command_line;    /* recorded in run_info */
-    const char *const *rules;    /* -r rule files (nrules, may be 0): schema,
-                                    footprint settings, map/derive/check,
-                                    defaults, gates */
-    size_t nrules;
     const char *districts;       /* --districts layer, or NULL (no placement) */
     const char *district_key;    /* --district-key, or NULL (place.h) */
     const char *region_key;      /* --region-key, or NULL */
@@ -54,6 +53,12 @@ typedef struct st_run_code_count {
     uint64_t count;
 } st_run_code_count;
 
+typedef struct st_run_unmapped {
+    char *field;                 /* schema field, owned */
+    char *value;                 /* source value no map line matched, owned */
+    uint64_t count;
+} st_run_unmapped;
+
 typedef struct st_run_result {
     st_run_layer *layers;
     size_t nlayers;
@@ -62,6 +67,8 @@ typedef struct st_run_result {
     uint64_t findings[3];        /* by severity: note, warning, error */
     int gate_failed;             /* 1: exit code 1 */
     char *gate_reason;           /* owned, why the gate failed, or NULL */
+    st_run_unmapped *unmapped;   /* most frequent first */
+    size_t nunmapped;
     char **outputs;              /* files written */
     size_t noutputs;
     st_audit *audit;             /* owned: the completeness audit (audit.h) */

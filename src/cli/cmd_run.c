@@ -22,15 +22,16 @@ void st_help_run(FILE *out)
             "                       run_info) or OUT.geojson/.geojsonl/.csv/.shp (one\n"
             "                       file per layer: OUT.set_aside.EXT, OUT.findings.EXT,\n"
             "                       OUT.run_info.csv)\n"
-            "  -r, --rules FILE     rule file (repeatable): schema, map, derive, check,\n"
-            "                       defaults, gate (docs/rules.md)\n"
+            "  -r, --rules FILE...  rule files (schema, footprint thresholds, map,\n"
+            "                       derive, check); see docs/rules.md\n"
             "  --districts FILE     district polygons (any readable layer); each building\n"
             "                       goes to the district covering its point on surface\n"
             "  --district-key FIELD the districts' key (default: the first field filled\n"
             "                       with a distinct value on every district)\n"
             "  --region-key FIELD   the districts' parent region, for region defaults\n"
-            "  --reference CSV      expected buildings per district: key, count columns\n"
-            "  --fill MODE          most-likely (default) or draw: how defaults fill\n"
+            "  --reference CSV      expected buildings per district (columns: key, count)\n"
+            "  --fill MODE          how defaults fill unknown fields: most-likely\n"
+            "                       (default) or draw (from the distribution, --seed)\n"
             "  --seed N             seed of the draw (default 1)\n"
             "  -j, --threads N      threads for placement (default 1)\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
@@ -88,10 +89,14 @@ static int parse_args(int argc, char **argv, run_args *a)
         int has_next = i + 1 < argc;
         if ((!strcmp(arg, "-o") || !strcmp(arg, "--output")) && has_next)
             a->opt.output = argv[++i];
-        else if (!strcmp(arg, "--crs") && has_next)
-            a->opt.crs_override = argv[++i];
-        else if ((!strcmp(arg, "-r") || !strcmp(arg, "--rules")) && has_next)
+        else if ((!strcmp(arg, "-r") || !strcmp(arg, "--rules")) && has_next) {
+            /* -r takes one or more rule files, up to the next option */
             a->rules[a->opt.nrules++] = argv[++i];
+            while (i + 1 < argc && argv[i + 1][0] != '-' &&
+                   st_str_ends_with_ci(argv[i + 1], ".rules"))
+                a->rules[a->opt.nrules++] = argv[++i];
+        } else if (!strcmp(arg, "--crs") && has_next)
+            a->opt.crs_override = argv[++i];
         else if (!strcmp(arg, "--districts") && has_next)
             a->opt.districts = argv[++i];
         else if (!strcmp(arg, "--district-key") && has_next)
@@ -109,15 +114,15 @@ static int parse_args(int argc, char **argv, run_args *a)
             else
                 return st_cli_usage_error("run", "--fill takes most-likely or draw, not '%s'", v);
         } else if (!strcmp(arg, "--seed") && has_next) {
-            unsigned long long v;
+            unsigned long long v = 0;
             if (!parse_count(argv[++i], UINT64_MAX, &v))
                 return st_cli_usage_error("run", "--seed takes a whole number, not '%s'", argv[i]);
             a->opt.seed = v;
         } else if ((!strcmp(arg, "-j") || !strcmp(arg, "--threads")) && has_next) {
-            unsigned long long v;
-            if (!parse_count(argv[++i], 64, &v) || v == 0)
-                return st_cli_usage_error("run", "-j takes a number of threads from 1 to 64, not '%s'",
-                                          argv[i]);
+            unsigned long long v = 0;
+            if (!parse_count(argv[++i], ST_PLACE_MAX_THREADS, &v) || v == 0)
+                return st_cli_usage_error("run", "-j takes a number of threads from 1 to %d, "
+                                          "not '%s'", ST_PLACE_MAX_THREADS, argv[i]);
             a->opt.threads = (unsigned)v;
         }
         else if (!strcmp(arg, "--fail-on") && has_next) {
@@ -137,10 +142,11 @@ static int parse_args(int argc, char **argv, run_args *a)
     }
     if (!a->opt.output)
         return st_cli_usage_error("run", "say where to write the inventory with -o OUT");
-    if ((a->opt.district_key || a->opt.region_key || a->opt.reference) && !a->opt.districts)
-        return st_cli_usage_error("run", "--district-key, --region-key and --reference need --districts");
     if (!a->opt.ninputs)
         return st_cli_usage_error("run", "give at least one input layer");
+    if ((a->opt.district_key || a->opt.region_key || a->opt.reference) && !a->opt.districts)
+        return st_cli_usage_error("run", "--district-key, --region-key and --reference "
+                                         "need --districts");
     a->opt.inputs = a->inputs;
     a->opt.rules = a->rules;
     return ST_EXIT_OK;
@@ -169,6 +175,11 @@ static void print_summary(const st_run_result *r, const char *output)
                 r->codes[c].severity == ST_SEV_ERROR ? "error"
                 : r->codes[c].severity == ST_SEV_WARNING ? "warning" : "note",
                 (unsigned long long)r->codes[c].count);
+    if (r->nunmapped)
+        fprintf(stderr, "\nunmapped source values (add map lines for these first):\n");
+    for (size_t u = 0; u < r->nunmapped && u < 10; u++)
+        fprintf(stderr, "  %-12s %-28s %llu\n", r->unmapped[u].field, r->unmapped[u].value,
+                (unsigned long long)r->unmapped[u].count);
     fprintf(stderr, "\ngate: %s%s%s\n", r->gate_failed ? "FAILED" : "passed",
             r->gate_reason ? " -- " : "", r->gate_reason ? r->gate_reason : "");
     fprintf(stderr, "inventory: %s\n", output);

@@ -233,3 +233,24 @@ st_status st_footprint_config_set_severity(st_footprint_config *cfg, const char 
     cfg->severity[c] = sev;
     return ST_OK;
 }
+
+/* Names of the ST_FLAG_* bits, in bit order (docs/output.md). */
+static const char *const flag_names[] = {
+    "null", "empty", "wrong-type", "bad-coordinate", "out-of-range", "swapped-axes",
+    "unclosed-ring", "too-few-points", "invalid", "repeated-vertex", "spike",
+    "fragment", "oversize", "sliver", "too-many-vertices", "repaired",
+    "area-changed", "replaced", "geos-error",
+};
+
+st_status st_footprint_flag_names(uint32_t flags, st_buf *out)
+{
+    st_status rc = ST_OK;
+    int first = 1;
+    for (size_t b = 0; rc == ST_OK && b < sizeof flag_names / sizeof flag_names[0]; b++) {
+        if (!(flags & (1u << b)))
+            continue;
+        rc = st_buf_printf(out, "%s%s", first ? "" : ",", flag_names[b]);
+        first = 0;
+    }
+    return rc;
+}

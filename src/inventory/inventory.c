@@ -12,6 +12,7 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "stocktake/footprint.h"
 #include "stocktake/inventory.h"
 #include "stocktake/io.h"
 
@@ -279,7 +280,11 @@ st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,
         size_t bid = scratch_num(inv, "%.0f", (double)f->bid, &rc);
         size_t area = scratch_num(inv, "%.2f", f->area_m2, &rc);
         size_t per = scratch_num(inv, "%.2f", f->perimeter_m, &rc);
-        size_t flags = scratch_num(inv, "%.0f", (double)f->flags, &rc);
+        size_t flags = inv->scratch.len;
+        if (rc == ST_OK)
+            rc = st_footprint_flag_names(f->flags, &inv->scratch);
+        if (rc == ST_OK)
+            rc = st_buf_append(&inv->scratch, "", 1);
         if (rc != ST_OK)
             break;
         inv->row[0] = inv->scratch.data + bid;

@@ -98,4 +98,62 @@ const char *st_path_ext(const char *path);
 /* Returns owned file stem ("dir/a.b.shp" -> "a.b"). */
 char *st_path_stem(const char *path);
 
+/* ---- GeoPackage binary geometry (io/gpkg_blob.c) ------------------------ */
+
+/* Largest geometry blob read or written (ST_ERR_LIMIT beyond). */
+#define ST_GPKG_MAX_BLOB ((size_t)256 << 20)
+
+struct st_geos;   /* stocktake/geomx.h */
+
+/* The header of a GeoPackage geometry blob (OGC 12-128r, clause 2.1.3). */
+typedef struct st_gpkg_header {
+    int little_endian;      /* flag bit B: byte order of srs_id and envelope */
+    int envelope_code;      /* flag bits E: 0 none, 1 xy, 2 xyz, 3 xym, 4 xyzm */
+    int empty;              /* flag bit Y */
+    int32_t srs_id;
+    double envelope[8];     /* as stored: minx, maxx, miny, maxy[, min, max]... */
+    size_t size;            /* header bytes: the WKB starts here */
+} st_gpkg_header;
+
+/*
+** Parse the header of the blob b[0..n) (borrowed) into *h. Checks magic,
+** version, the extended bit (unsupported), the envelope code and that the
+** header fits in n. On failure returns ST_ERR_FORMAT and writes the reason
+** into err.
+*/
+st_status st_gpkg_blob_header(const unsigned char *b, size_t n,
+                              st_gpkg_header *h, char *err,
+                              size_t errlen) ST_MUST_CHECK;
+
+/*
+** Decode a whole GeoPackage geometry blob (borrowed) into 'out' (cleared
+** first): header, then the WKB through GEOS (gx, the caller's context).
+** Every count in the WKB is checked against the bytes left before GEOS sees
+** it. Curved and other types GEOS cannot hold give type ST_GEOM_OTHER.
+** Returns ST_ERR_FORMAT (reason in err), ST_ERR_LIMIT or ST_ERR_NOMEM;
+** 'out' is then NULL-typed. Safe on any input: meant for a fuzz target.
+*/
+st_status st_gpkg_blob_decode(struct st_geos *gx, const unsigned char *b,
+                              size_t n, st_geom *out, char *err,
+                              size_t errlen) ST_MUST_CHECK;
+
+/*
+** Encode g (borrowed; not ST_GEOM_NULL or ST_GEOM_OTHER) as a GeoPackage
+** blob into 'out' (cleared first): little-endian header with srs_id, an
+** [minx, maxx, miny, maxy] envelope of the finite coordinates (none when
+** the geometry is empty: then the empty flag is set), then 2-D
+** little-endian WKB. A collection is written as a multipolygon, like
+** st_geom_to_geos(). env receives the envelope as (minx, miny, maxx, maxy)
+** and *has_env whether there is one. ST_ERR_LIMIT beyond ST_GPKG_MAX_BLOB.
+*/
+st_status st_gpkg_blob_encode(const st_geom *g, int32_t srs_id, st_buf *out,
+                              double env[4], int *has_env) ST_MUST_CHECK;
+
+/* Returns owned SQLite "file:" URI of path (percent-encoded, so that no
+** file name is mistaken for a URI) with '?query' appended; NULL on no
+** memory. */
+char *st_gpkg_uri(const char *path, const char *query);
+/* Append name as an SQL identifier in double quotes ("" inside). */
+st_status st_gpkg_quote_ident(st_buf *b, const char *name) ST_MUST_CHECK;
+
 #endif

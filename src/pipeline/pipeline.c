@@ -28,6 +28,7 @@
 #include "stocktake/pipeline.h"
 #include "stocktake/place.h"
 #include "stocktake/rules.h"
+#include "pipelineInt.h"
 
 typedef struct run_state {
     const st_run_options *opt;
@@ -38,7 +39,9 @@ typedef struct run_state {
     st_run_result *res;
     st_findings findings;
     st_geos *gx;
-    st_rules *rules;             /* -r, or NULL */
+    st_rules *rules;             /* NULL without -r */
+    st_footprint_config fcfg;
+    st_neighbours_config ncfg;
     st_districts *districts;     /* --districts, or NULL */
     st_reference *reference;     /* --reference, or NULL */
     st_defaults *defaults;       /* with rules */
@@ -138,8 +141,9 @@ static st_status layer_extent(run_state *s, uint32_t l, size_t first, size_t end
     return rc;
 }
 
-static st_status check_footprints(run_state *s, const st_footprint_config *cfg)
+static st_status check_footprints(run_state *s)
 {
+    const st_footprint_config *cfg = &s->fcfg;
     st_footprint_checker *ck = NULL;
     st_status rc = st_footprint_checker_new(&ck);
     size_t i = 0;
@@ -168,8 +172,6 @@ static st_status check_footprints(run_state *s, const st_footprint_config *cfg)
 
 static st_status compare_neighbours(run_state *s)
 {
-    st_neighbours_config cfg;
-    st_neighbours_config_init(&cfg);
     const char **names = st_calloc(s->res->nlayers, sizeof *names);
     if (!names)
         return ST_ERR_NOMEM;
@@ -177,66 +179,53 @@ static st_status compare_neighbours(run_state *s)
         names[l] = s->res->layers[l].name;
     st_neighbours_input in = {s->features, s->nfeatures, names, (uint32_t)s->res->nlayers};
     progress(s, "neighbours", 0, (long long)s->nfeatures);
-    st_status rc = st_neighbours_run(&cfg, &in, s->gx, &s->findings, s->diags);
+    st_status rc = st_neighbours_run(&s->ncfg, &in, s->gx, &s->findings, s->diags);
     st_free(names);
     return rc;
 }
 
-/* The rule files' footprint settings onto the geometry stage's config. A
-** setting the stage does not know is a warning, not an error: lint has
-** already said what it thinks of the name. */
-static void footprint_settings(run_state *s, st_footprint_config *cfg)
+/* The unmapped values of the run, most frequent first, copied into the
+** result so they outlive the rule context. */
+static st_status keep_unmapped(run_state *s, const st_unmapped *u)
 {
-    for (size_t i = 0; s->rules && i < st_rules_setting_count(s->rules); i++) {
-        const st_rule_setting *r = st_rules_setting(s->rules, i);
-        char err[200] = "";
-        st_status rc;
-        if (r->has_number)
-            rc = st_footprint_config_set(cfg, r->name, r->number, r->unit[0] ? r->unit : NULL,
-                                         r->has_severity ? &r->severity : NULL, err, sizeof err);
-        else if (r->word)
-            rc = st_footprint_config_set_word(cfg, r->name, r->word, err, sizeof err);
-        else {
-            rc = ST_ERR_USAGE;
-            snprintf(err, sizeof err, "'%s' needs a value", r->name);
-        }
-        if (rc != ST_OK)
-            st_diags_add(s->diags, ST_SEV_WARNING, ST_OK, NULL,
-                         "%s: footprint setting not applied: %s", r->rule, err);
+    st_unmapped_item *items = NULL;
+    size_t n = 0;
+    st_status rc = st_unmapped_sorted(u, &items, &n);
+    if (rc != ST_OK)
+        return rc;
+    st_run_result *r = s->res;
+    r->unmapped = st_calloc(n ? n : 1, sizeof *r->unmapped);
+    rc = r->unmapped ? ST_OK : ST_ERR_NOMEM;
+    for (size_t i = 0; rc == ST_OK && i < n; i++) {
+        st_run_unmapped *m = &r->unmapped[i];
+        m->field = st_strdup(items[i].field);
+        m->value = st_strdup(items[i].value);
+        m->count = items[i].count;
+        r->nunmapped = i + 1;
+        if (!m->field || !m->value)
+            rc = ST_ERR_NOMEM;
     }
-}
-
-static st_status place_buildings(run_state *s)
-{
-    progress(s, "place", 0, (long long)s->nfeatures);
-    st_place_stats stats;
-    return st_place_features(s->districts, s->features, s->nfeatures, s->opt->threads,
-                             ST_SEV_WARNING, &s->findings, s->diags, &stats);
-}
-
-static int is_kept(const st_feature *f)
-{
-    return f->status == ST_STATUS_OK || f->status == ST_STATUS_REPAIRED;
+    st_free(items);
+    return rc;
 }
 
 /* map -> derive -> check on every kept building. */
 static st_status apply_rules(run_state *s)
 {
+    if (!s->rules)
+        return ST_OK;
     st_rules_ctx *ctx = NULL;
     st_status rc = st_rules_ctx_new(s->rules, &ctx);
-    uint32_t layer = UINT32_MAX;
     for (size_t i = 0; rc == ST_OK && i < s->nfeatures; i++) {
         st_feature *f = s->features[i];
-        if (!is_kept(f))
+        if (f->status != ST_STATUS_OK && f->status != ST_STATUS_REPAIRED)
             continue;
-        if (f->layer != layer) {
-            st_rules_ctx_reset_layer(ctx);
-            layer = f->layer;
-        }
         rc = st_rules_apply(ctx, f, &s->fields[f->layer], &s->findings);
         if ((i & 0x3FFF) == 0)
             progress(s, "rules", (long long)i, (long long)s->nfeatures);
     }
+    if (rc == ST_OK)
+        rc = keep_unmapped(s, st_rules_ctx_unmapped(ctx));
     if (rc == ST_OK)
         rc = st_unmapped_new(&s->unmapped);
     if (rc == ST_OK)
@@ -245,7 +234,23 @@ static st_status apply_rules(run_state *s)
     return rc;
 }
 
-/* Where a defaults table is wrong the run stops before any real work. */
+static int is_kept(const st_feature *f)
+{
+    return f->status == ST_STATUS_OK || f->status == ST_STATUS_REPAIRED;
+}
+
+static st_status place_buildings(run_state *s)
+{
+    if (!s->districts)
+        return ST_OK;
+    progress(s, "place", 0, (long long)s->nfeatures);
+    st_place_stats stats;
+    return st_place_features(s->districts, s->features, s->nfeatures, s->opt->threads,
+                             ST_SEV_WARNING, &s->findings, s->diags, &stats);
+}
+
+/* Read the defaults tables now: a bad table stops the run before any data
+** is read. */
 static st_status prepare_defaults(run_state *s)
 {
     size_t n = s->districts ? st_districts_count(s->districts) : 0;
@@ -263,6 +268,8 @@ static st_status prepare_defaults(run_state *s)
 /* Learn from the observed values, then fill what is still unknown. */
 static st_status fill_defaults(run_state *s)
 {
+    if (!s->rules)
+        return ST_OK;
     progress(s, "defaults", 0, (long long)s->nfeatures);
     st_status rc = st_defaults_learn(s->defaults, s->features, s->nfeatures);
     st_rules_ctx *ctx = NULL;
@@ -275,13 +282,13 @@ static st_status fill_defaults(run_state *s)
     return rc;
 }
 
-static st_status run_audit(run_state *s, st_audit **out)
+static st_status run_audit(run_state *s)
 {
     int fail_on = s->opt->fail_on == ST_FAIL_ON_WARNING ? ST_SEV_WARNING
                 : s->opt->fail_on == ST_FAIL_ON_ERROR ? ST_SEV_ERROR : -1;
     st_audit_input in = {s->features, s->nfeatures, &s->findings, s->districts, s->rules,
                          s->defaults, s->unmapped, s->reference, fail_on};
-    return st_audit_compute(&in, s->diags, out);
+    return st_audit_compute(&in, s->diags, &s->res->audit);
 }
 
 /* Findings in building order (stable: a stage's own order is kept). */
@@ -370,7 +377,8 @@ static st_status count_codes(run_state *s)
     return ST_OK;
 }
 
-/* The gate as the audit judged it: the first failing line says why. */
+/* The gate as the audit judged it (rule gate lines, then --fail-on): the
+** first failing line says why. */
 static st_status decide_gate(run_state *s)
 {
     st_run_result *r = s->res;
@@ -378,7 +386,8 @@ static st_status decide_gate(run_state *s)
     r->gate_failed = a->gate_failed;
     for (size_t i = 0; i < a->ngates && !r->gate_reason; i++) {
         const st_audit_gate *g = &a->gates[i];
-        if (!g->passed && g->fails && !(r->gate_reason = st_strdup_printf("%s (%s)", g->detail, g->rule)))
+        if (!g->passed && g->fails && !(r->gate_reason = st_strdup_printf("%s (%s)", g->detail,
+                                                                          g->rule)))
             return ST_ERR_NOMEM;
     }
     return ST_OK;
@@ -435,14 +444,13 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     snprintf(seed, sizeof seed, "%llu", (unsigned long long)s->opt->seed);
     size_t k = 3 + nl;
     if (rc == ST_OK && s->districts) {
-        kv[2 * k] = "districts";
+        const st_districts *d = s->districts;
         owned[nl] = st_strdup_printf(
             "%s (%s): key %s, region %s, %zu districts, %zu polygon(s) repaired",
-            st_districts_path(s->districts), st_districts_crs(s->districts),
-            st_districts_key_field(s->districts),
-            st_districts_region_field(s->districts) ? st_districts_region_field(s->districts)
-                                                    : "none",
-            st_districts_count(s->districts), st_districts_repaired(s->districts));
+            st_districts_path(d), st_districts_crs(d), st_districts_key_field(d),
+            st_districts_region_field(d) ? st_districts_region_field(d) : "none",
+            st_districts_count(d), st_districts_repaired(d));
+        kv[2 * k] = "districts";
         kv[2 * k++ + 1] = owned[nl];
         rc = owned[nl] ? ST_OK : ST_ERR_NOMEM;
     }
@@ -455,7 +463,7 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     n = k;
     if (rc == ST_OK)
         rc = st_inventory_write_run_info(inv, kv, n);
-    for (size_t l = 0; owned && l < nl; l++)
+    for (size_t l = 0; owned && l <= nl; l++)
         st_free(owned[l]);
     st_free(owned);
     st_free(kv);
@@ -475,23 +483,24 @@ static st_status write_inventory(run_state *s)
     st_feature **kept = NULL, **aside = NULL;
     progress(s, "write", 0, (long long)s->nfeatures);
     uint32_t nschema = s->rules ? st_rules_field_count(s->rules) : 0;
-    const char **schema = st_calloc(nschema ? nschema : 1, sizeof *schema);
+    const char **schema = st_calloc(nschema + 1, sizeof *schema);
     if (!schema) {
         st_free(layers);
         return ST_ERR_NOMEM;
     }
-    for (uint32_t i = 0; i < nschema; i++)
-        schema[i] = st_rules_field(s->rules, i)->name;
-    const char *const *names = s->districts ? st_districts_keys(s->districts) : NULL;
+    for (uint32_t k = 0; k < nschema; k++)
+        schema[k] = st_rules_field(s->rules, k)->name;
     st_status rc = st_inventory_open(s->opt->output, layers, (uint32_t)nl, schema, nschema,
                                      s->diags, &inv);
+    st_free(schema);
     if (rc == ST_OK) {
         kept = select_features(s, 1, &nk);
         aside = select_features(s, 0, &ns);
         rc = kept && aside ? ST_OK : ST_ERR_NOMEM;
     }
     if (rc == ST_OK)
-        rc = st_inventory_write_buildings(inv, kept, nk, names);
+        rc = st_inventory_write_buildings(inv, kept, nk,
+                                          s->districts ? st_districts_keys(s->districts) : NULL);
     if (rc == ST_OK)
         rc = st_inventory_write_set_aside(inv, aside, ns);
     if (rc == ST_OK)
@@ -506,16 +515,28 @@ static st_status write_inventory(run_state *s)
     st_free(kept);
     st_free(aside);
     st_free(layers);
-    st_free(schema);
     return rc;
 }
 
-static st_status load_inputs(run_state *s)
+/* Rules first: a bad rule file stops the run before any data is read. */
+static st_status load_rules(run_state *s)
+{
+    s->fcfg = st_footprint_config_default();
+    st_neighbours_config_init(&s->ncfg);
+    if (!s->opt->nrules)
+        return ST_OK;
+    st_status rc = st_rules_load(s->opt->rules, s->opt->nrules, s->diags, &s->rules);
+    if (rc == ST_OK)
+        rc = st_settings_apply(s->rules, &s->fcfg, &s->ncfg, s->diags);
+    return rc;
+}
+
+/* Districts, reference counts and defaults tables: all read before the
+** footprints, so a bad one stops the run early. */
+static st_status load_places(run_state *s)
 {
     st_status rc = ST_OK;
-    if (s->opt->nrules)
-        rc = st_rules_load(s->opt->rules, s->opt->nrules, s->diags, &s->rules);
-    if (rc == ST_OK && s->opt->districts) {
+    if (s->opt->districts) {
         st_districts_options d = {s->opt->districts, s->opt->district_key,
                                   s->opt->region_key, NULL};
         progress(s, "districts", 0, 0);
@@ -525,25 +546,25 @@ static st_status load_inputs(run_state *s)
         rc = st_reference_load(s->opt->reference, s->diags, &s->reference);
     if (rc == ST_OK && s->rules)
         rc = prepare_defaults(s);
-    for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
-        rc = read_layer(s, l);
     return rc;
 }
 
 static st_status run_stages(run_state *s)
 {
-    st_status rc = load_inputs(s);
-    st_footprint_config cfg = st_footprint_config_default();
-    footprint_settings(s, &cfg);
+    st_status rc = load_rules(s);
     if (rc == ST_OK)
-        rc = check_footprints(s, &cfg);
+        rc = load_places(s);
+    for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
+        rc = read_layer(s, l);
+    if (rc == ST_OK)
+        rc = check_footprints(s);
     if (rc == ST_OK)
         rc = compare_neighbours(s);
-    if (rc == ST_OK && s->districts)
+    if (rc == ST_OK)
         rc = place_buildings(s);
-    if (rc == ST_OK && s->rules)
+    if (rc == ST_OK)
         rc = apply_rules(s);
-    if (rc == ST_OK && s->rules)
+    if (rc == ST_OK)
         rc = fill_defaults(s);
     if (rc == ST_OK) {
         sort_findings(&s->findings);
@@ -551,7 +572,7 @@ static st_status run_stages(run_state *s)
         rc = count_codes(s);
     }
     if (rc == ST_OK)
-        rc = run_audit(s, &s->res->audit);
+        rc = run_audit(s);
     if (rc == ST_OK)
         rc = decide_gate(s);
     if (rc == ST_OK)
@@ -621,6 +642,11 @@ void st_run_result_free(st_run_result *r)
     st_free(r->gate_reason);
     st_audit_free(r->audit);
     st_districts_free(r->districts);
+    for (size_t i = 0; r->unmapped && i < r->nunmapped; i++) {
+        st_free(r->unmapped[i].field);
+        st_free(r->unmapped[i].value);
+    }
+    st_free(r->unmapped);
     for (size_t i = 0; i < r->noutputs; i++)
         st_free(r->outputs[i]);
     st_free(r->outputs);

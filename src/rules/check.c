@@ -25,12 +25,13 @@
 
 typedef enum { TY_ERR, TY_NUM, TY_TEXT, TY_BOOL, TY_ANY } rtype;
 
-/* Footprint setting names the geometry stage documents (docs/rules.md);
-** others are kept but warned about. */
+/* Footprint setting names the geometry and neighbour stages accept
+** (docs/footprint.md, docs/neighbours.md; mapped in pipeline/settings.c);
+** others are kept but warned about here, and refused by `run`. */
 static const char *const known_settings[] = {
-    "min-area", "max-area", "sliver", "min-width", "overlap", "near-duplicate",
-    "duplicate-distance", "repeated-points", "spike-angle", "max-vertices", "max-parts",
-    "repair", "reject", "invalid",
+    "min-area", "max-area", "min-compactness", "max-vertices", "spike-angle",
+    "max-area-change", "repair", "repair-method",
+    "overlap", "near-duplicate", "contained",
 };
 
 static const char *const measures[MEASURE_COUNT] = {"area_m2", "perimeter_m"};

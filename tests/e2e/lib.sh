@@ -21,7 +21,7 @@ expect_rc() {
 
 # expect_stderr PATTERN: the last expect_rc's stderr matches (grep -E).
 expect_stderr() {
-    grep -qE "$1" "$TMP/stderr" || { cat "$TMP/stderr" >&2; fail "stderr does not match /$1/"; }
+    grep -qE -e "$1" "$TMP/stderr" || { cat "$TMP/stderr" >&2; fail "stderr does not match /$1/"; }
 }
 
 # ogr_count FILE [LAYER]: feature count as GDAL's ogrinfo reports it.
