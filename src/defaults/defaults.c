@@ -228,12 +228,12 @@ void st_defaults_free(st_defaults *d)
 {
     if (!d)
         return;
-    for (size_t i = 0; i < d->ne; i++) {
+    for (size_t i = 0; d->e && i < d->ne; i++) {
         st_free(d->e[i].choices);
         st_free(d->e[i].conds);
     }
     st_free(d->e);
-    for (size_t i = 0; i < d->nd; i++)
+    for (size_t i = 0; d->dkeys && i < d->nd; i++)
         st_free(d->dkeys[i]);
     st_free(d->dkeys);
     st_free(d->dregion);

@@ -115,15 +115,20 @@ static st_status parse_cond(tstate *t, long line, uint32_t fi, const char *cell,
         c->is_range = 0;
         return c->text ? ST_OK : ST_ERR_NOMEM;
     }
-    char *end;
+    char lo[64], *end;
+    size_t nlo = (size_t)(dots - cell);
     c->is_range = 1;
     c->lo = -INFINITY;
     c->hi = INFINITY;
-    if (dots != cell) {
-        c->lo = strtod(cell, &end);
+    if (nlo >= sizeof lo)
+        return bad(t, line, "'%s' is not a range lo..hi of field '%s'", cell, sf->name);
+    if (nlo) {
+        memcpy(lo, cell, nlo);
+        lo[nlo] = '\0';
+        c->lo = strtod(lo, &end);
         while (*end == ' ')
             end++;
-        if (end != dots)
+        if (end == lo || *end)
             return bad(t, line, "'%s' is not a range lo..hi of field '%s'", cell, sf->name);
     }
     if (dots[2]) {
