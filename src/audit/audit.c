@@ -281,6 +281,12 @@ static int by_count(const void *x, const void *y)
     return strcmp(a->code, b->code);
 }
 
+static void sort_codes(st_audit_code *c, size_t n)
+{
+    if (n > 1)              /* qsort wants a non-NULL array, even empty */
+        qsort(c, n, sizeof *c, by_count);
+}
+
 /* Per district and in total; worst[] gets each kept building's worst
 ** severity (+1; 0 = none) for the share() gates. */
 static st_status count_findings(st_audit *a, const st_audit_input *in, uint8_t *worst)
@@ -308,9 +314,9 @@ static st_status count_findings(st_audit *a, const st_audit_input *in, uint8_t *
     }
     st_free(ix);
     for (size_t i = 0; i < a->ndistricts; i++)
-        qsort(a->districts[i].codes, a->districts[i].ncodes, sizeof *a->codes, by_count);
-    qsort(a->total.codes, a->total.ncodes, sizeof *a->codes, by_count);
-    qsort(a->codes, a->ncodes, sizeof *a->codes, by_count);
+        sort_codes(a->districts[i].codes, a->districts[i].ncodes);
+    sort_codes(a->total.codes, a->total.ncodes);
+    sort_codes(a->codes, a->ncodes);
     return rc;
 }
 
