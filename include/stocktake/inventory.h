@@ -9,8 +9,8 @@
 **   buildings  bid layer source_id status area_m2 perimeter_m flags district
 **              [<field> <field>_from <field>_rule]... then every source
 **              attribute under its own name (src_<name> where it collides)
-**   set_aside  bid layer source_id status reason duplicate_of, then the
-**              source attributes; geometry as read
+**   set_aside  bid layer source_id status reason duplicate_of district,
+**              then the source attributes; geometry as read
 **   findings   bid code severity message; point geometry where known
 **   run_info   key value
 **   districts  district region buildings repaired duplicate rejected
@@ -51,10 +51,12 @@ st_status st_inventory_open(const char *path, const st_inventory_layer *layers,
 st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,
                                        size_t n, const char *const *district_names)
     ST_MUST_CHECK;
-/* Set-aside features with their source geometry: 'source' (may be NULL)
-** gives, per feature, the geometry as read when f->geom was replaced. */
+/* Set-aside features with the geometry as read (f->source_geom when a
+** stage replaced f->geom); 'district_names' as for buildings: the district
+** the placement found for the feature's footprint, "none" without one. */
 st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs,
-                                       size_t n) ST_MUST_CHECK;
+                                       size_t n, const char *const *district_names)
+    ST_MUST_CHECK;
 st_status st_inventory_write_findings(st_inventory *inv,
                                       const st_findings *findings) ST_MUST_CHECK;
 /* Key/value pairs (2 * n strings, borrowed). */

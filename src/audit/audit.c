@@ -509,17 +509,16 @@ static st_status rule_gate(st_audit *a, const st_gate_rule *g, const uint8_t *wo
             return add_gate(a, what, g->rule, v, g->threshold, 0, 0, detail);
         }
         holds = st_rules_gate_holds(g, v);
-        snprintf(detail, sizeof detail, "district-completeness of %s = %.3f %s %g", which, v,
-                 holds ? cmp_text(g->cmp) : "(holds for no district; limit", g->threshold);
-        if (!holds)
-            strncat(detail, ")", sizeof detail - strlen(detail) - 1);
+        snprintf(detail, sizeof detail, "%s: %s for %s (%.3f %s %g)", what,
+                 holds ? "holds" : "holds for no district, nearest", which, v,
+                 holds ? cmp_text(g->cmp) : "vs", g->threshold);
         return add_gate(a, what, g->rule, v, g->threshold, holds, g->action == ST_GATE_FAIL,
                         detail);
     }
     }
     holds = st_rules_gate_holds(g, v);
-    snprintf(detail, sizeof detail, "%s: %.4f %s %g", what, v,
-             holds ? cmp_text(g->cmp) : "does not meet", g->threshold);
+    snprintf(detail, sizeof detail, "%s: %s (%.4f %s %g)", what,
+             holds ? "holds" : "does not hold", v, holds ? cmp_text(g->cmp) : "vs", g->threshold);
     return add_gate(a, what, g->rule, v, g->threshold, holds, g->action == ST_GATE_FAIL, detail);
 }
 

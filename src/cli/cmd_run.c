@@ -152,6 +152,52 @@ static int parse_args(int argc, char **argv, run_args *a)
     return ST_EXIT_OK;
 }
 
+/* One district line: buildings found against the reference count. */
+static void print_district(const st_audit_district *d)
+{
+    fprintf(stderr, "  %-22s %9llu", d->key, (unsigned long long)d->buildings);
+    if (d->expected >= 0)
+        fprintf(stderr, " %9lld %7.2f  %s", (long long)d->expected, d->ratio,
+                st_ref_state_name(d->ref));
+    fputc('\n', stderr);
+}
+
+/* The audit: districts (all up to 30, else only the flagged ones), the
+** learned defaults, every gate line. The districts layer has the rest. */
+static void print_audit(const st_audit *a)
+{
+    if (a->nlayer_districts) {
+        size_t flagged = 0;
+        for (size_t i = 0; i < a->ndistricts; i++)
+            flagged += a->districts[i].ref == ST_REF_UNDER || a->districts[i].ref == ST_REF_OVER ||
+                       a->districts[i].ref == ST_REF_ABSENT;
+        int all = a->ndistricts <= 31;
+        fprintf(stderr, "\n%-24s %9s%s\n", all ? "district" : "district (flagged only)",
+                "buildings", a->has_reference ? "  expected   ratio  reference" : "");
+        for (size_t i = 0; i < a->ndistricts; i++) {
+            const st_audit_district *d = &a->districts[i];
+            if (all || d->ref == ST_REF_UNDER || d->ref == ST_REF_OVER || d->ref == ST_REF_ABSENT)
+                print_district(d);
+        }
+        if (a->has_reference)
+            fprintf(stderr, "under-mapped below %.2f, over-mapped above %.2f: %zu district(s) "
+                    "flagged; the districts layer has every figure\n",
+                    a->under_ratio, a->over_ratio, flagged);
+    }
+    if (a->nlearned)
+        fprintf(stderr, "\ndefaults learned from the data:\n");
+    for (size_t i = 0; i < a->nlearned && i < 10; i++)
+        fprintf(stderr, "  %-10s %s %-14s from %llu buildings: %s\n", a->learned[i].field,
+                a->learned[i].per_region ? "region  " : "district", a->learned[i].district,
+                (unsigned long long)a->learned[i].from_buildings, a->learned[i].distribution);
+    if (a->nlearned > 10)
+        fprintf(stderr, "  ... and %zu more\n", a->nlearned - 10);
+    for (size_t i = 0; i < a->ngates; i++)
+        fprintf(stderr, "%s  %-5s %-8s %s\n", i ? "" : "\ngate lines:\n",
+                a->gates[i].fails ? "fail" : "warn", a->gates[i].passed ? "passed" : "HOLDS",
+                a->gates[i].detail);
+}
+
 static void print_summary(const st_run_result *r, const char *output)
 {
     fprintf(stderr, "\n%-24s %9s %9s %9s %9s %9s\n", "layer", "read", "buildings",
@@ -180,6 +226,8 @@ static void print_summary(const st_run_result *r, const char *output)
     for (size_t u = 0; u < r->nunmapped && u < 10; u++)
         fprintf(stderr, "  %-12s %-28s %llu\n", r->unmapped[u].field, r->unmapped[u].value,
                 (unsigned long long)r->unmapped[u].count);
+    if (r->audit)
+        print_audit(r->audit);
     fprintf(stderr, "\ngate: %s%s%s\n", r->gate_failed ? "FAILED" : "passed",
             r->gate_reason ? " -- " : "", r->gate_reason ? r->gate_reason : "");
     fprintf(stderr, "inventory: %s\n", output);

@@ -26,7 +26,7 @@ static const char *const layer_names[L_COUNT] = {
 static const char *const building_cols[] = {
     "bid", "layer", "source_id", "status", "area_m2", "perimeter_m", "flags", "district"};
 static const char *const set_aside_cols[] = {
-    "bid", "layer", "source_id", "status", "reason", "duplicate_of"};
+    "bid", "layer", "source_id", "status", "reason", "duplicate_of", "district"};
 #define N_BUILDING_COLS (sizeof building_cols / sizeof building_cols[0])
 #define N_SET_ASIDE_COLS (sizeof set_aside_cols / sizeof set_aside_cols[0])
 
@@ -309,7 +309,8 @@ st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,
     return rc;
 }
 
-st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs, size_t n)
+st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs, size_t n,
+                                      const char *const *district_names)
 {
     st_writer *w = writer_for(inv, L_SET_ASIDE);
     st_status rc = st_writer_begin_layer(w, "set_aside", &inv->sfields, ST_GEOM_OTHER);
@@ -327,6 +328,8 @@ st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs,
         inv->row[3] = (char *)st_feature_status_name(f->status);
         inv->row[4] = f->reason;
         inv->row[5] = f->status == ST_STATUS_DUPLICATE ? inv->scratch.data + dup : NULL;
+        inv->row[6] = (char *)(f->district >= 0 && district_names
+                                   ? district_names[f->district] : "none");
         place_source_values(inv, f, N_SET_ASIDE_COLS);
         rc = write_row(w, f, inv->row, inv->sfields.count, 0);
     }

@@ -412,7 +412,13 @@ static st_feature **select_features(run_state *s, int kept, size_t *n)
 static st_status write_run_info(run_state *s, st_inventory *inv)
 {
     char when[32];
-    time_t t = time(NULL);
+    /* SOURCE_DATE_EPOCH (reproducible-builds.org) pins the time, so the
+    ** same seed, inputs and rules give byte-identical outputs. */
+    const char *epoch = getenv("SOURCE_DATE_EPOCH");
+    time_t t = epoch && epoch[0] && strspn(epoch, "0123456789") == strlen(epoch) &&
+                       strlen(epoch) < 16
+                   ? (time_t)strtoll(epoch, NULL, 10)
+                   : time(NULL);
     struct tm tmv;
     strftime(when, sizeof when, "%Y-%m-%dT%H:%M:%SZ", gmtime_r(&t, &tmv));
     size_t nl = s->res->nlayers;
@@ -479,6 +485,7 @@ static st_status write_inventory(run_state *s)
     for (size_t l = 0; l < nl; l++)
         layers[l] = (st_inventory_layer){s->res->layers[l].name, &s->fields[l]};
     st_inventory *inv = NULL;
+    const char *const *names = s->districts ? st_districts_keys(s->districts) : NULL;
     size_t nk = 0, ns = 0;
     st_feature **kept = NULL, **aside = NULL;
     progress(s, "write", 0, (long long)s->nfeatures);
@@ -499,10 +506,9 @@ static st_status write_inventory(run_state *s)
         rc = kept && aside ? ST_OK : ST_ERR_NOMEM;
     }
     if (rc == ST_OK)
-        rc = st_inventory_write_buildings(inv, kept, nk,
-                                          s->districts ? st_districts_keys(s->districts) : NULL);
+        rc = st_inventory_write_buildings(inv, kept, nk, names);
     if (rc == ST_OK)
-        rc = st_inventory_write_set_aside(inv, aside, ns);
+        rc = st_inventory_write_set_aside(inv, aside, ns, names);
     if (rc == ST_OK)
         rc = st_inventory_write_findings(inv, &s->findings);
     if (rc == ST_OK && s->districts)
