@@ -59,6 +59,14 @@ typedef struct st_run_unmapped {
     uint64_t count;
 } st_run_unmapped;
 
+/* Wall time of one stage of the run (monotonic clock). */
+typedef struct st_run_time {
+    const char *stage;           /* static: "read", "place", "defaults", ... */
+    double seconds;
+} st_run_time;
+
+#define ST_RUN_MAX_TIMES 16
+
 typedef struct st_run_result {
     st_run_layer *layers;
     size_t nlayers;
@@ -71,6 +79,8 @@ typedef struct st_run_result {
     size_t nunmapped;
     char **outputs;              /* files written */
     size_t noutputs;
+    st_run_time times[ST_RUN_MAX_TIMES];  /* stages in run order */
+    size_t ntimes;
     st_audit *audit;             /* owned: the completeness audit (audit.h) */
     st_districts *districts;     /* owned, or NULL: the district layer the
                                     audit's polygons point into */

@@ -37,6 +37,7 @@ void st_help_run(FILE *out)
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
+            "  --timings            print the wall time of each stage (also with -q)\n"
             "  -h, --help           this text\n"
             "\n"
             "INPUT: .shp, .geojson, .geojsonl, .gpkg (FILE.gpkg:LAYER for one layer).\n"
@@ -53,6 +54,7 @@ typedef struct run_args {
     const char **inputs;
     const char **rules;
     int quiet;
+    int timings;
 } run_args;
 
 /* A whole decimal number in [0, max]; 0 if it is not one. */
@@ -133,7 +135,9 @@ static int parse_args(int argc, char **argv, run_args *a)
                 a->opt.fail_on = ST_FAIL_ON_ERROR;
             else
                 return st_cli_usage_error("run", "--fail-on takes warn or error, not '%s'", v);
-        } else if (!strcmp(arg, "-q") || !strcmp(arg, "--quiet"))
+        } else if (!strcmp(arg, "--timings"))
+            a->timings = 1;
+        else if (!strcmp(arg, "-q") || !strcmp(arg, "--quiet"))
             a->quiet = 1;
         else if (arg[0] == '-' && arg[1])
             return st_cli_usage_error("run", "unknown or incomplete option '%s'", arg);
@@ -265,6 +269,8 @@ int st_cmd_run(int argc, char **argv)
     } else {
         if (!a.quiet)
             print_summary(res, a.opt.output);
+        for (size_t t = 0; a.timings && t < res->ntimes; t++)
+            fprintf(stderr, "timing: %-18s %9.3f s\n", res->times[t].stage, res->times[t].seconds);
         rc = res->gate_failed ? ST_EXIT_GATE : ST_EXIT_OK;
     }
     st_run_result_free(res);

@@ -555,35 +555,56 @@ static st_status load_places(run_state *s)
     return rc;
 }
 
-static st_status run_stages(run_state *s)
+static double now_seconds(void)
 {
-    st_status rc = load_rules(s);
-    if (rc == ST_OK)
-        rc = load_places(s);
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + ts.tv_nsec / 1e9;
+}
+
+/* Run one stage unless an earlier one failed, and time it. */
+static st_status timed(run_state *s, st_status rc, const char *stage,
+                       st_status (*fn)(run_state *))
+{
+    if (rc != ST_OK)
+        return rc;
+    double t0 = now_seconds();
+    rc = fn(s);
+    st_run_result *r = s->res;
+    if (r->ntimes < ST_RUN_MAX_TIMES)
+        r->times[r->ntimes++] = (st_run_time){stage, now_seconds() - t0};
+    return rc;
+}
+
+static st_status read_layers(run_state *s)
+{
+    st_status rc = ST_OK;
     for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
         rc = read_layer(s, l);
-    if (rc == ST_OK)
-        rc = check_footprints(s);
-    if (rc == ST_OK)
-        rc = compare_neighbours(s);
-    if (rc == ST_OK)
-        rc = place_buildings(s);
-    if (rc == ST_OK)
-        rc = apply_rules(s);
-    if (rc == ST_OK)
-        rc = fill_defaults(s);
-    if (rc == ST_OK) {
-        sort_findings(&s->findings);
-        tally(s);
-        rc = count_codes(s);
-    }
-    if (rc == ST_OK)
-        rc = run_audit(s);
-    if (rc == ST_OK)
-        rc = decide_gate(s);
-    if (rc == ST_OK)
-        rc = write_inventory(s);
     return rc;
+}
+
+static st_status tally_findings(run_state *s)
+{
+    sort_findings(&s->findings);
+    tally(s);
+    return count_codes(s);
+}
+
+static st_status run_stages(run_state *s)
+{
+    st_status rc = timed(s, ST_OK, "rules", load_rules);
+    rc = timed(s, rc, "districts", load_places);
+    rc = timed(s, rc, "read", read_layers);
+    rc = timed(s, rc, "footprints", check_footprints);
+    rc = timed(s, rc, "neighbours", compare_neighbours);
+    rc = timed(s, rc, "place", place_buildings);
+    rc = timed(s, rc, "map-derive-check", apply_rules);
+    rc = timed(s, rc, "defaults", fill_defaults);
+    rc = timed(s, rc, "findings", tally_findings);
+    rc = timed(s, rc, "audit", run_audit);
+    rc = timed(s, rc, "gate", decide_gate);
+    return timed(s, rc, "write", write_inventory);
 }
 
 st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_result **out)
