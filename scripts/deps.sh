@@ -7,9 +7,10 @@ set -eu
 BUILD_PKGS="gcc make pkg-config libgeos-dev libproj-dev libshp-dev
 libsqlite3-dev libpcre2-dev libyajl-dev libcsv-dev libcmocka-dev"
 # Tests: outside references (GDAL, PROJ tools, shapely/pyproj/geopandas
-# on Debian's python), and the sqlite3 shell.
+# on Debian's python), the sqlite3 shell, JSON Schema validation of
+# report.json, and a real browser (headless Chromium) for report.html.
 TEST_PKGS="gdal-bin python3-gdal proj-bin python3-pyproj python3-shapely
-python3-geopandas shapelib sqlite3 valgrind time"
+python3-geopandas shapelib sqlite3 valgrind time python3-jsonschema chromium"
 
 missing=""
 for p in $BUILD_PKGS $TEST_PKGS; do

@@ -143,6 +143,16 @@ void st_diags_set_excerpt(st_diags *d, const char *line, size_t n);
 ** into 'out' (appends). */
 st_status st_diag_render(const st_diag *g, st_buf *out) ST_MUST_CHECK;
 
+/* ---- time ----------------------------------------------------------------- */
+
+/*
+** The run's clock as ISO 8601 UTC ("2026-12-02T04:10:00Z") into buf. When
+** the environment sets SOURCE_DATE_EPOCH (seconds since 1970, the common
+** convention for reproducible outputs) that time is used instead of now,
+** so the same inputs give byte-identical outputs.
+*/
+void st_now_iso8601(char buf[32]);
+
 /* ---- small string helpers --------------------------------------------- */
 
 /* 1 if s ends with suffix, compared ASCII case-insensitively. */

@@ -1,6 +1,6 @@
 /*
 ** stocktake/pipeline.h -- one whole run: read every input, check and repair
-** footprints, compare neighbours, place, apply rules and defaults, audit, write the
+** footprints, compare neighbours, (place, apply rules, audit), write the
 ** inventory. The CLI's `run` fills st_run_options and prints the result.
 **
 ** Nothing lost: every feature read ends up exactly once in `buildings` or
@@ -13,8 +13,8 @@
 #include "stocktake/core.h"
 #include "stocktake/audit.h"
 #include "stocktake/defaults.h"
-#include "stocktake/finding.h"
 #include "stocktake/place.h"
+#include "stocktake/finding.h"
 
 typedef enum { ST_FAIL_ON_NONE = 0, ST_FAIL_ON_WARNING, ST_FAIL_ON_ERROR } st_fail_on;
 
@@ -34,6 +34,8 @@ typedef struct st_run_options {
     st_fill_mode fill;           /* --fill most-likely | draw */
     uint64_t seed;               /* --seed for the draw */
     unsigned threads;            /* -j: threads for placement (0 = 1) */
+    const char *report_dir;      /* --report DIR: report.json and report.html
+                                    written there (report.h), or NULL */
     /* Progress: called now and then from the calling thread; may be NULL. */
     void (*progress)(void *ud, const char *stage, long long done, long long total);
     void *progress_ud;
@@ -84,6 +86,8 @@ typedef struct st_run_result {
     st_audit *audit;             /* owned: the completeness audit (audit.h) */
     st_districts *districts;     /* owned, or NULL: the district layer the
                                     audit's polygons point into */
+    char *summary;               /* owned: the terminal summary (report.h) for
+                                    the CLI to print, or NULL */
 } st_run_result;
 
 /*

@@ -1,6 +1,7 @@
 /*
 ** cli/cmd_run.c -- `stocktake run`: parse options, run the pipeline, print
-** the terminal summary, choose the exit code.
+** the terminal summary the library rendered (report.h), choose the exit
+** code: 0 done, 1 gate failed (outputs written), 2 error (nothing written).
 */
 #include <errno.h>
 #include <stdlib.h>
@@ -19,13 +20,14 @@ void st_help_run(FILE *out)
             "layer together and write the inventory.\n"
             "\n"
             "  -o, --output OUT     OUT.gpkg (layers buildings, set_aside, findings,\n"
-            "                       run_info) or OUT.geojson/.geojsonl/.csv/.shp (one\n"
-            "                       file per layer: OUT.set_aside.EXT, OUT.findings.EXT,\n"
-            "                       OUT.run_info.csv)\n"
+            "                       run_info, unmapped) or OUT.geojson/.geojsonl/.csv/\n"
+            "                       .shp (one file per layer: OUT.set_aside.EXT,\n"
+            "                       OUT.findings.EXT, OUT.run_info.csv, OUT.unmapped.csv)\n"
             "  -r, --rules FILE...  rule files (schema, footprint thresholds, map,\n"
-            "                       derive, check); see docs/rules.md\n"
+            "                       derive, check, defaults, gate); see docs/rules.md\n"
             "  --districts FILE     district polygons (any readable layer); each building\n"
-            "                       goes to the district covering its point on surface\n"
+            "                       goes to the district covering its point on surface;\n"
+            "                       adds the districts layer (docs/districts.md)\n"
             "  --district-key FIELD the districts' key (default: the first field filled\n"
             "                       with a distinct value on every district)\n"
             "  --region-key FIELD   the districts' parent region, for region defaults\n"
@@ -34,6 +36,8 @@ void st_help_run(FILE *out)
             "                       (default) or draw (from the distribution, --seed)\n"
             "  --seed N             seed of the draw (default 1)\n"
             "  -j, --threads N      threads for placement (default 1)\n"
+            "  --report DIR         write DIR/report.json and DIR/report.html (a\n"
+            "                       self-contained page: map, charts, tables)\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
@@ -46,7 +50,8 @@ void st_help_run(FILE *out)
             "\n"
             "Every feature read ends up once in buildings (ok, repaired) or in\n"
             "set_aside (duplicate, rejected); the summary shows the balance.\n"
-            "exit: 0 done; 1 done but the gate failed; 2 error, nothing written.\n");
+            "exit: 0 done; 1 done but the gate failed (outputs written, the report\n"
+            "says which gate and by how much); 2 error, nothing written.\n");
 }
 
 typedef struct run_args {
@@ -97,7 +102,9 @@ static int parse_args(int argc, char **argv, run_args *a)
             while (i + 1 < argc && argv[i + 1][0] != '-' &&
                    st_str_ends_with_ci(argv[i + 1], ".rules"))
                 a->rules[a->opt.nrules++] = argv[++i];
-        } else if (!strcmp(arg, "--crs") && has_next)
+        } else if (!strcmp(arg, "--report") && has_next)
+            a->opt.report_dir = argv[++i];
+        else if (!strcmp(arg, "--crs") && has_next)
             a->opt.crs_override = argv[++i];
         else if (!strcmp(arg, "--districts") && has_next)
             a->opt.districts = argv[++i];
@@ -156,87 +163,6 @@ static int parse_args(int argc, char **argv, run_args *a)
     return ST_EXIT_OK;
 }
 
-/* One district line: buildings found against the reference count. */
-static void print_district(const st_audit_district *d)
-{
-    fprintf(stderr, "  %-22s %9llu", d->key, (unsigned long long)d->buildings);
-    if (d->expected >= 0)
-        fprintf(stderr, " %9lld %7.2f  %s", (long long)d->expected, d->ratio,
-                st_ref_state_name(d->ref));
-    fputc('\n', stderr);
-}
-
-/* The audit: districts (all up to 30, else only the flagged ones), the
-** learned defaults, every gate line. The districts layer has the rest. */
-static void print_audit(const st_audit *a)
-{
-    if (a->nlayer_districts) {
-        size_t flagged = 0;
-        for (size_t i = 0; i < a->ndistricts; i++)
-            flagged += a->districts[i].ref == ST_REF_UNDER || a->districts[i].ref == ST_REF_OVER ||
-                       a->districts[i].ref == ST_REF_ABSENT;
-        int all = a->ndistricts <= 31;
-        fprintf(stderr, "\n%-24s %9s%s\n", all ? "district" : "district (flagged only)",
-                "buildings", a->has_reference ? "  expected   ratio  reference" : "");
-        for (size_t i = 0; i < a->ndistricts; i++) {
-            const st_audit_district *d = &a->districts[i];
-            if (all || d->ref == ST_REF_UNDER || d->ref == ST_REF_OVER || d->ref == ST_REF_ABSENT)
-                print_district(d);
-        }
-        if (a->has_reference)
-            fprintf(stderr, "under-mapped below %.2f, over-mapped above %.2f: %zu district(s) "
-                    "flagged; the districts layer has every figure\n",
-                    a->under_ratio, a->over_ratio, flagged);
-    }
-    if (a->nlearned)
-        fprintf(stderr, "\ndefaults learned from the data:\n");
-    for (size_t i = 0; i < a->nlearned && i < 10; i++)
-        fprintf(stderr, "  %-10s %s %-14s from %llu buildings: %s\n", a->learned[i].field,
-                a->learned[i].per_region ? "region  " : "district", a->learned[i].district,
-                (unsigned long long)a->learned[i].from_buildings, a->learned[i].distribution);
-    if (a->nlearned > 10)
-        fprintf(stderr, "  ... and %zu more\n", a->nlearned - 10);
-    for (size_t i = 0; i < a->ngates; i++)
-        fprintf(stderr, "%s  %-5s %-8s %s\n", i ? "" : "\ngate lines:\n",
-                a->gates[i].fails ? "fail" : "warn", a->gates[i].passed ? "passed" : "HOLDS",
-                a->gates[i].detail);
-}
-
-static void print_summary(const st_run_result *r, const char *output)
-{
-    fprintf(stderr, "\n%-24s %9s %9s %9s %9s %9s\n", "layer", "read", "buildings",
-            "repaired", "duplicate", "rejected");
-    for (size_t l = 0; l < r->nlayers; l++) {
-        const st_run_layer *L = &r->layers[l];
-        int balanced = L->read == L->kept + L->duplicate + L->rejected;
-        fprintf(stderr, "%-24s %9llu %9llu %9llu %9llu %9llu%s\n", L->name,
-                (unsigned long long)L->read, (unsigned long long)L->kept,
-                (unsigned long long)L->repaired, (unsigned long long)L->duplicate,
-                (unsigned long long)L->rejected, balanced ? "" : "  UNBALANCED");
-    }
-    fprintf(stderr, "read = buildings + set aside (duplicate + rejected) for every layer\n");
-    if (r->ncodes)
-        fprintf(stderr, "\nfindings: %llu error, %llu warning, %llu note; most frequent:\n",
-                (unsigned long long)r->findings[ST_SEV_ERROR],
-                (unsigned long long)r->findings[ST_SEV_WARNING],
-                (unsigned long long)r->findings[ST_SEV_NOTE]);
-    for (size_t c = 0; c < r->ncodes && c < 10; c++)
-        fprintf(stderr, "  %-28s %-8s %llu\n", r->codes[c].code,
-                r->codes[c].severity == ST_SEV_ERROR ? "error"
-                : r->codes[c].severity == ST_SEV_WARNING ? "warning" : "note",
-                (unsigned long long)r->codes[c].count);
-    if (r->nunmapped)
-        fprintf(stderr, "\nunmapped source values (add map lines for these first):\n");
-    for (size_t u = 0; u < r->nunmapped && u < 10; u++)
-        fprintf(stderr, "  %-12s %-28s %llu\n", r->unmapped[u].field, r->unmapped[u].value,
-                (unsigned long long)r->unmapped[u].count);
-    if (r->audit)
-        print_audit(r->audit);
-    fprintf(stderr, "\ngate: %s%s%s\n", r->gate_failed ? "FAILED" : "passed",
-            r->gate_reason ? " -- " : "", r->gate_reason ? r->gate_reason : "");
-    fprintf(stderr, "inventory: %s\n", output);
-}
-
 int st_cmd_run(int argc, char **argv)
 {
     run_args a;
@@ -267,8 +193,8 @@ int st_cmd_run(int argc, char **argv)
         fprintf(stderr, "stocktake run: stopped (%s); nothing was written\n", st_status_name(st));
         rc = ST_EXIT_ERROR;
     } else {
-        if (!a.quiet)
-            print_summary(res, a.opt.output);
+        if (!a.quiet && res->summary)
+            fputs(res->summary, stderr);
         for (size_t t = 0; a.timings && t < res->ntimes; t++)
             fprintf(stderr, "timing: %-18s %9.3f s\n", res->times[t].stage, res->times[t].seconds);
         rc = res->gate_failed ? ST_EXIT_GATE : ST_EXIT_OK;

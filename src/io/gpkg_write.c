@@ -366,16 +366,16 @@ static st_status register_layer(st_writer *w, const char *table, st_geom_type ty
     sqlite3_stmt *s = NULL;
     st_status rc = prepare(w,
         "INSERT INTO gpkg_contents (table_name, data_type, identifier, description, "
-        "last_change, srs_id) VALUES (?1, ?2, ?1, '', "
-        "COALESCE(strftime('%Y-%m-%dT%H:%M:%fZ', ?4, 'unixepoch'), "
-        "strftime('%Y-%m-%dT%H:%M:%fZ','now')), ?3)", &s, "adding to gpkg_contents");
+        "last_change, srs_id) VALUES (?1, ?2, ?1, '', ?4, ?3)", &s,
+        "adding to gpkg_contents");
     if (rc != ST_OK)
         return rc;
-    /* SOURCE_DATE_EPOCH (reproducible-builds.org) pins the time stamp, so
-    ** the same run gives the same bytes; without it: now. */
-    const char *epoch = getenv("SOURCE_DATE_EPOCH");
-    if (epoch && epoch[0] && strspn(epoch, "0123456789") == strlen(epoch) && strlen(epoch) < 16)
-        sqlite3_bind_int64(s, 4, strtoll(epoch, NULL, 10));
+    /* SOURCE_DATE_EPOCH when set (reproducible files); the spec's form
+    ** has milliseconds: 2026-12-02T04:10:00.000Z */
+    char when[32], stamp[40];
+    st_now_iso8601(when);
+    snprintf(stamp, sizeof stamp, "%.*s.000Z", (int)strlen(when) - 1, when);
+    sqlite3_bind_text(s, 4, stamp, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(s, 1, table, -1, SQLITE_STATIC);
     sqlite3_bind_text(s, 2, geom ? "features" : "attributes", -1, SQLITE_STATIC);
     if (geom)

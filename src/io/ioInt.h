@@ -149,10 +149,6 @@ st_status st_gpkg_blob_decode(struct st_geos *gx, const unsigned char *b,
 st_status st_gpkg_blob_encode(const st_geom *g, int32_t srs_id, st_buf *out,
                               double env[4], int *has_env) ST_MUST_CHECK;
 
-/* Returns owned SQLite "file:" URI of path (percent-encoded, so that no
-** file name is mistaken for a URI) with '?query' appended; NULL on no
-** memory. */
-char *st_gpkg_uri(const char *path, const char *query);
 /* Append name as an SQL identifier in double quotes ("" inside). */
 st_status st_gpkg_quote_ident(st_buf *b, const char *name) ST_MUST_CHECK;
 

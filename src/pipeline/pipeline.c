@@ -1,7 +1,7 @@
 /*
 ** pipeline/pipeline.c -- one run, stage after stage, data flowing one way:
 ** read -> footprint -> neighbours -> place -> rules (map, derive, check)
-** -> defaults -> audit -> write.
+** -> defaults -> audit -> write (inventory, then the report).
 **
 ** Input:  st_run_options (input layers, output path, rules, districts,
 **         reference counts, fill mode and seed, gate threshold).
@@ -27,6 +27,7 @@
 #include "stocktake/neighbours.h"
 #include "stocktake/pipeline.h"
 #include "stocktake/place.h"
+#include "stocktake/report.h"
 #include "stocktake/rules.h"
 #include "pipelineInt.h"
 
@@ -42,11 +43,20 @@ typedef struct run_state {
     st_rules *rules;             /* NULL without -r */
     st_footprint_config fcfg;
     st_neighbours_config ncfg;
+    char started[32];            /* UTC, ISO 8601 */
+    st_report_dist dist;         /* kept buildings, filled while writing */
     st_districts *districts;     /* --districts, or NULL */
     st_reference *reference;     /* --reference, or NULL */
     st_defaults *defaults;       /* with rules */
     st_unmapped *unmapped;       /* with rules: unmapped source values */
 } run_state;
+
+/* The files a run read, hashed for the report (role and path per entry). */
+typedef struct report_files {
+    st_report_file *items;
+    size_t count, cap;
+    char **paths;                /* owned copies the items point into */
+} report_files;
 
 static void progress(run_state *s, const char *stage, long long done, long long total)
 {
@@ -84,8 +94,33 @@ static char *unique_layer_name(run_state *s, size_t upto, const char *base)
     }
 }
 
+/* GeoJSON types a field by its first value: a later "PB+2" in a field that
+** began with 2 makes it text, so that the inventory does not declare a
+** number column for it (GDAL reads such a value back as 0). 'first' is the
+** layer's first feature. */
+static void demote_numeric_fields(run_state *s, size_t l, size_t first)
+{
+    st_fields *fl = &s->fields[l];
+    for (size_t i = first; i < s->nfeatures; i++) {
+        const st_feature *f = s->features[i];
+        for (uint32_t k = 0; k < f->nvalues && k < fl->count; k++) {
+            st_field *fd = &fl->items[k];
+            const char *v = f->values[k];
+            if ((fd->type != ST_FIELD_INTEGER && fd->type != ST_FIELD_REAL) || !v || !*v)
+                continue;
+            char *end;
+            (void)strtod(v, &end);
+            if (*end) {
+                fd->type = ST_FIELD_TEXT;
+                fd->width = 0;
+            }
+        }
+    }
+}
+
 static st_status read_layer(run_state *s, size_t l)
 {
+    size_t first = s->nfeatures;
     st_read_options ro = ST_READ_OPTIONS_DEFAULT;
     ro.crs_override = s->opt->crs_override;
     st_reader *r = NULL;
@@ -100,7 +135,13 @@ static st_status read_layer(run_state *s, size_t l)
             break;
         f->layer = (uint32_t)l;
         f->bid = (uint64_t)s->nfeatures + 1;
-        rc = push_feature(s, f);
+        /* A feature without an id of its own (a GeoJSON feature with no
+        ** "id") is known by its 0-based position in the layer. */
+        if (!f->source_id &&
+            !(f->source_id = st_strdup_printf("%llu", (unsigned long long)f->index)))
+            rc = ST_ERR_NOMEM;
+        if (rc == ST_OK)
+            rc = push_feature(s, f);
         if (rc != ST_OK) {
             st_feature_free(f);
             break;
@@ -121,6 +162,8 @@ static st_status read_layer(run_state *s, size_t l)
     }
     if (rc == ST_OK)
         rc = st_fields_copy(&s->fields[l], st_reader_fields(r));
+    if (rc == ST_OK)
+        demote_numeric_fields(s, l, first);
     st_reader_close(r);
     return rc;
 }
@@ -412,15 +455,7 @@ static st_feature **select_features(run_state *s, int kept, size_t *n)
 static st_status write_run_info(run_state *s, st_inventory *inv)
 {
     char when[32];
-    /* SOURCE_DATE_EPOCH (reproducible-builds.org) pins the time, so the
-    ** same seed, inputs and rules give byte-identical outputs. */
-    const char *epoch = getenv("SOURCE_DATE_EPOCH");
-    time_t t = epoch && epoch[0] && strspn(epoch, "0123456789") == strlen(epoch) &&
-                       strlen(epoch) < 16
-                   ? (time_t)strtoll(epoch, NULL, 10)
-                   : time(NULL);
-    struct tm tmv;
-    strftime(when, sizeof when, "%Y-%m-%dT%H:%M:%SZ", gmtime_r(&t, &tmv));
+    st_now_iso8601(when);
     size_t nl = s->res->nlayers;
     size_t n = 3 + nl + 3;
     const char **kv = st_calloc(2 * n, sizeof *kv);
@@ -476,6 +511,181 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     return rc;
 }
 
+/* Storeys field of the schema, or -1 (no rules). */
+static int32_t storeys_field(const run_state *s)
+{
+    return s->rules ? st_rules_field_find(s->rules, "storeys") : -1;
+}
+
+static void report_files_free(report_files *rf)
+{
+    for (size_t i = 0; i < rf->count; i++)
+        st_free(rf->paths[i]);
+    st_free(rf->paths);
+    st_free(rf->items);
+    memset(rf, 0, sizeof *rf);
+}
+
+/* Add 'path' (taken: freed here on failure or when already listed). */
+static st_status add_file(report_files *rf, const char *role, char *path)
+{
+    if (!path)
+        return ST_ERR_NOMEM;
+    for (size_t i = 0; i < rf->count; i++)
+        if (!strcmp(rf->paths[i], path)) {
+            st_free(path);
+            return ST_OK;
+        }
+    if (rf->count == rf->cap) {
+        size_t cap = rf->cap ? 2 * rf->cap : 8;
+        st_report_file *it = st_realloc(rf->items, cap * sizeof *it);
+        if (it)
+            rf->items = it;
+        char **p = it ? st_realloc(rf->paths, cap * sizeof *p) : NULL;
+        if (!p) {
+            st_free(path);
+            return ST_ERR_NOMEM;
+        }
+        rf->paths = p;
+        rf->cap = cap;
+    }
+    rf->paths[rf->count] = path;
+    memset(&rf->items[rf->count], 0, sizeof rf->items[rf->count]);
+    rf->items[rf->count].role = role;
+    rf->items[rf->count].path = path;
+    rf->count++;
+    return ST_OK;
+}
+
+/* A layer's file and, for a shapefile, its sibling files. */
+static st_status add_layer_files(report_files *rf, const char *role, const char *path)
+{
+    char **sib = NULL;
+    size_t n = 0;
+    st_status rc = st_report_file_siblings(path, &sib, &n);
+    for (size_t i = 0; i < n; i++) {
+        if (rc == ST_OK)
+            rc = add_file(rf, role, sib[i]);
+        else
+            st_free(sib[i]);
+    }
+    st_free(sib);
+    return rc;
+}
+
+static st_status collect_files(run_state *s, report_files *rf)
+{
+    st_status rc = ST_OK;
+    for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++)
+        rc = add_layer_files(rf, "input", s->res->layers[l].path);
+    for (size_t i = 0; rc == ST_OK && i < s->opt->nrules; i++)
+        rc = add_file(rf, "rules", st_strdup(s->opt->rules[i]));
+    for (size_t i = 0; rc == ST_OK && s->rules && i < st_rules_table_count(s->rules); i++)
+        rc = add_file(rf, "defaults table", st_strdup(st_rules_table(s->rules, i)->path));
+    if (rc == ST_OK && s->opt->districts)
+        rc = add_layer_files(rf, "districts", s->opt->districts);
+    if (rc == ST_OK && s->opt->reference)
+        rc = add_file(rf, "reference", st_strdup(s->opt->reference));
+    if (rc == ST_OK)
+        rc = st_report_hash_files(rf->items, rf->count, s->diags);
+    return rc;
+}
+
+/* res->outputs: the inventory, then the report files when asked for. */
+static st_status set_outputs(run_state *s)
+{
+    st_run_result *r = s->res;
+    r->outputs = st_calloc(3, sizeof *r->outputs);
+    if (!r->outputs)
+        return ST_ERR_NOMEM;
+    r->outputs[r->noutputs++] = st_strdup(s->opt->output);
+    if (s->opt->report_dir) {
+        const char *d = s->opt->report_dir;
+        size_t dl = strlen(d);
+        while (dl > 1 && d[dl - 1] == '/')
+            dl--;
+        r->outputs[r->noutputs++] = st_strdup_printf("%.*s/report.json", (int)dl, d);
+        r->outputs[r->noutputs++] = st_strdup_printf("%.*s/report.html", (int)dl, d);
+    }
+    for (size_t i = 0; i < r->noutputs; i++)
+        if (!r->outputs[i])
+            return ST_ERR_NOMEM;
+    return ST_OK;
+}
+
+static void report_input(run_state *s, const report_files *rf, const char *finished,
+                         st_report_input *in)
+{
+    memset(in, 0, sizeof *in);
+    in->run = s->res;
+    in->audit = s->res->audit;
+    in->dist = &s->dist;
+    in->files = rf ? rf->items : NULL;
+    in->nfiles = rf ? rf->count : 0;
+    in->command_line = s->opt->command_line;
+    in->started = s->started;
+    in->finished = finished;
+    in->outputs = (const char *const *)s->res->outputs;
+    in->noutputs = s->res->noutputs;
+}
+
+/* Render report.json and report.html under temporary names. */
+static st_status prepare_report(run_state *s, st_report_pending **rep)
+{
+    report_files rf;
+    memset(&rf, 0, sizeof rf);
+    progress(s, "report", 0, 1);
+    st_status rc = collect_files(s, &rf);
+    if (rc == ST_OK) {
+        char finished[32];
+        st_now_iso8601(finished);
+        st_report_input in;
+        report_input(s, &rf, finished, &in);
+        rc = st_report_prepare(&in, s->opt->report_dir, s->diags, rep);
+    }
+    report_files_free(&rf);
+    return rc;
+}
+
+static st_status make_summary(run_state *s)
+{
+    char finished[32];
+    st_now_iso8601(finished);
+    st_report_input in;
+    report_input(s, NULL, finished, &in);
+    st_buf b;
+    st_buf_init(&b, ST_REPORT_MAX_BYTES);
+    st_status rc = st_report_text(&in, &b);
+    if (rc == ST_OK)
+        s->res->summary = st_buf_take(&b);
+    st_buf_free(&b);
+    return rc == ST_OK && !s->res->summary ? ST_ERR_NOMEM : rc;
+}
+
+/* The unmapped values as rows of (field, value, count) for the inventory. */
+static st_status write_unmapped(run_state *s, st_inventory *inv)
+{
+    const st_run_result *r = s->res;
+    const char **rows = st_calloc(3 * r->nunmapped + 1, sizeof *rows);
+    char **counts = st_calloc(r->nunmapped + 1, sizeof *counts);
+    st_status rc = rows && counts ? ST_OK : ST_ERR_NOMEM;
+    for (size_t i = 0; rc == ST_OK && i < r->nunmapped; i++) {
+        counts[i] = st_strdup_printf("%llu", (unsigned long long)r->unmapped[i].count);
+        rows[3 * i] = r->unmapped[i].field;
+        rows[3 * i + 1] = r->unmapped[i].value;
+        rows[3 * i + 2] = counts[i];
+        if (!counts[i])
+            rc = ST_ERR_NOMEM;
+    }
+    if (rc == ST_OK)
+        rc = st_inventory_write_unmapped(inv, rows, r->nunmapped);
+    for (size_t i = 0; counts && i < r->nunmapped; i++)
+        st_free(counts[i]);
+    st_free(counts);
+    st_free(rows);
+    return rc;
+}
+
 static st_status write_inventory(run_state *s)
 {
     size_t nl = s->res->nlayers;
@@ -505,6 +715,8 @@ static st_status write_inventory(run_state *s)
         aside = select_features(s, 0, &ns);
         rc = kept && aside ? ST_OK : ST_ERR_NOMEM;
     }
+    for (size_t i = 0; rc == ST_OK && i < nk; i++)
+        st_report_dist_add(&s->dist, kept[i], storeys_field(s));
     if (rc == ST_OK)
         rc = st_inventory_write_buildings(inv, kept, nk, names);
     if (rc == ST_OK)
@@ -516,7 +728,19 @@ static st_status write_inventory(run_state *s)
     if (rc == ST_OK)
         rc = write_run_info(s, inv);
     if (rc == ST_OK)
+        rc = write_unmapped(s, inv);
+    /* The report is rendered and written to temporary names before the
+    ** inventory is renamed into place, so an error in either leaves
+    ** nothing behind; the two renames after that do not fail in practice
+    ** (same folders, files already written). */
+    st_report_pending *rep = NULL;
+    if (rc == ST_OK && s->opt->report_dir)
+        rc = prepare_report(s, &rep);
+    if (rc == ST_OK)
         rc = st_inventory_commit(inv);
+    if (rc == ST_OK && rep)
+        rc = st_report_commit(rep, s->diags);
+    st_report_pending_free(rep);
     st_inventory_close(inv);
     st_free(kept);
     st_free(aside);
@@ -591,6 +815,13 @@ static st_status tally_findings(run_state *s)
     return count_codes(s);
 }
 
+static st_status outputs_and_summary(run_state *s)
+{
+    st_status rc = set_outputs(s);
+    /* the summary first: once the outputs are in place nothing may fail */
+    return rc == ST_OK ? make_summary(s) : rc;
+}
+
 static st_status run_stages(run_state *s)
 {
     st_status rc = timed(s, ST_OK, "rules", load_rules);
@@ -604,6 +835,7 @@ static st_status run_stages(run_state *s)
     rc = timed(s, rc, "findings", tally_findings);
     rc = timed(s, rc, "audit", run_audit);
     rc = timed(s, rc, "gate", decide_gate);
+    rc = timed(s, rc, "summary", outputs_and_summary);
     return timed(s, rc, "write", write_inventory);
 }
 
@@ -617,6 +849,7 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     memset(&s, 0, sizeof s);
     s.opt = opt;
     s.diags = diags;
+    st_now_iso8601(s.started);
     st_findings_init(&s.findings);
     s.res = st_calloc(1, sizeof *s.res);
     s.fields = st_calloc(opt->ninputs, sizeof *s.fields);
@@ -677,5 +910,6 @@ void st_run_result_free(st_run_result *r)
     for (size_t i = 0; i < r->noutputs; i++)
         st_free(r->outputs[i]);
     st_free(r->outputs);
+    st_free(r->summary);
     st_free(r);
 }
