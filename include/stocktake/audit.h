@@ -78,11 +78,12 @@ typedef struct st_audit_count {
 typedef struct st_audit_learned {
     char *district;        /* where the default was learned (a region key
                               when per_region) */
-    int per_region;
-    char *rule;            /* the learn line, "file:line" */
     char *field;
-    uint64_t from_buildings;  /* buildings with a source value it came from */
+    uint64_t from_buildings;  /* buildings with an observed (source or
+                                 derived) value it came from */
     char *distribution;    /* "URM 60%, RM 30%, TMB 10%" */
+    int per_region;        /* 1: learned for a region */
+    char *rule;            /* the learn line, "file:line" */
 } st_audit_learned;
 
 typedef struct st_audit_gate {
