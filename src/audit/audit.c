@@ -477,13 +477,31 @@ static double district_ratio(const st_audit *a, const st_gate_rule *g, const cha
     return pick;
 }
 
+/* The measured quantity as the detail names it: "share(error)", ... */
+static void metric_name(const st_audit *a, const st_gate_rule *g, char *out, size_t n)
+{
+    const char *field = g->field >= 0 && (uint32_t)g->field < a->nfields ? a->fields[g->field] : "?";
+    switch (g->metric) {
+    case ST_METRIC_SHARE: snprintf(out, n, "share(%s)", st_severity_name(g->severity)); break;
+    case ST_METRIC_COMPLETENESS: snprintf(out, n, "completeness(%s)", field); break;
+    case ST_METRIC_OBSERVED: snprintf(out, n, "observed(%s)", field); break;
+    case ST_METRIC_DISTRICT_COMPLETENESS: snprintf(out, n, "district-completeness"); break;
+    }
+}
+
+/*
+** One gate line. The detail gives the measured value against the limit:
+** "share(error) = 0.0380 > 0.02" when the condition holds, "share(error) =
+** 0.0092, not > 0.05" when it does not; for district-completeness the
+** district that decides: "district-completeness of QM08 = 0.167 < 0.5".
+*/
 static st_status rule_gate(st_audit *a, const st_gate_rule *g, const uint8_t *worst,
                            const st_audit_input *in)
 {
     double v = NAN;
-    char detail[512];
-    const char *what = g->text;
-    int holds = 0;
+    char detail[512], name[160];
+    const char *which = NULL;
+    metric_name(a, g, name, sizeof name);
     switch (g->metric) {
     case ST_METRIC_SHARE: {
         uint64_t n = 0;
@@ -501,25 +519,23 @@ static st_status rule_gate(st_audit *a, const st_gate_rule *g, const uint8_t *wo
         v = share_of(n, a->total.buildings);
         break;
     }
-    case ST_METRIC_DISTRICT_COMPLETENESS: {
-        const char *which = NULL;
+    case ST_METRIC_DISTRICT_COMPLETENESS:
         v = district_ratio(a, g, &which);
         if (isnan(v)) {
-            snprintf(detail, sizeof detail, "%s: no district has a reference count", what);
-            return add_gate(a, what, g->rule, v, g->threshold, 0, 0, detail);
+            snprintf(detail, sizeof detail, "%s: no district has a reference count", name);
+            return add_gate(a, g->text, g->rule, v, g->threshold, 0,
+                            g->action == ST_GATE_FAIL, detail);
         }
-        holds = st_rules_gate_holds(g, v);
-        snprintf(detail, sizeof detail, "%s: %s for %s (%.3f %s %g)", what,
-                 holds ? "holds" : "holds for no district, nearest", which, v,
-                 holds ? cmp_text(g->cmp) : "vs", g->threshold);
-        return add_gate(a, what, g->rule, v, g->threshold, holds, g->action == ST_GATE_FAIL,
-                        detail);
+        break;
     }
-    }
-    holds = st_rules_gate_holds(g, v);
-    snprintf(detail, sizeof detail, "%s: %s (%.4f %s %g)", what,
-             holds ? "holds" : "does not hold", v, holds ? cmp_text(g->cmp) : "vs", g->threshold);
-    return add_gate(a, what, g->rule, v, g->threshold, holds, g->action == ST_GATE_FAIL, detail);
+    int holds = st_rules_gate_holds(g, v);
+    char of[ST_PLACE_MAX_KEY + 8] = "";
+    if (which)
+        snprintf(of, sizeof of, " of %s", which);
+    snprintf(detail, sizeof detail, holds ? "%s%s = %.4g %s %g" : "%s%s = %.4g, not %s %g",
+             name, of, v, cmp_text(g->cmp), g->threshold);
+    return add_gate(a, g->text, g->rule, v, g->threshold, holds, g->action == ST_GATE_FAIL,
+                    detail);
 }
 
 static st_status evaluate_gates(st_audit *a, const st_audit_input *in, const uint8_t *worst)
