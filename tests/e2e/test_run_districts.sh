@@ -82,6 +82,9 @@ printf 'include "%s"\ndefaults\n  table "d.csv"\nend\n' "$R" >"$TMP/t.rules"
 expect_rc 2 "$STOCKTAKE" run -q -r "$TMP/t.rules" $D -o "$TMP/bad.gpkg" $IN
 expect_stderr "d.csv:2: error: default for 'material': shares add up to 90%"
 [ ! -e "$TMP/bad.gpkg" ] || fail "a failed run wrote its output"
+# lint checks the table's content too
+expect_rc 2 "$STOCKTAKE" lint "$TMP/t.rules"
+expect_stderr "d.csv:2: error: default for 'material': shares add up to 90%"
 
 # shellcheck disable=SC2086
 expect_rc 2 "$STOCKTAKE" run -q --districts "$S/districts.geojson" --district-key nope \
