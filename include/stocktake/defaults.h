@@ -13,7 +13,9 @@
 **          or value, or whose shares do not add up: ST_ERR_RULE (bad
 **          content) or ST_ERR_FORMAT (bad CSV) with a diagnostic
 **          "file:line: ..."; ST_ERR_IO when it cannot be read; ST_ERR_LIMIT.
-** Limits:  ST_DEFAULTS_MAX_TABLE_BYTES a table, ST_DEFAULTS_MAX_ROWS rows.
+** Limits:  ST_DEFAULTS_MAX_TABLE_BYTES a table, ST_DEFAULTS_MAX_ROWS rows in
+**          all tables, ST_CSV_MAX_CELL bytes a cell and ST_CSV_MAX_COLUMNS
+**          columns (csvread.h).
 **
 ** Which default applies (docs/rules.md, "How defaults are chosen"): for a
 ** building in district D of region R, for each unknown field, the first of
@@ -46,7 +48,6 @@
 
 #define ST_DEFAULTS_MAX_TABLE_BYTES (64u << 20)  /* one defaults CSV */
 #define ST_DEFAULTS_MAX_ROWS 1000000u            /* rows of all tables */
-#define ST_DEFAULTS_MAX_CELL 4096u               /* bytes of one cell */
 
 typedef enum {
     ST_FILL_MOST_LIKELY = 0,  /* the value with the largest share; `default` */
