@@ -39,6 +39,11 @@ typedef struct st_run_options {
     /* Progress: called now and then from the calling thread; may be NULL. */
     void (*progress)(void *ud, const char *stage, long long done, long long total);
     void *progress_ud;
+    /* Memory limit in bytes (0: st_run_default_max_memory()). The run
+    ** estimates its need from the input sizes before reading and from
+    ** each feature while reading, and stops with ST_ERR_LIMIT before it
+    ** passes the limit (pipeline/guard.c, docs/reliability.md). */
+    uint64_t max_memory;
 } st_run_options;
 
 typedef struct st_run_layer {
@@ -98,5 +103,14 @@ typedef struct st_run_result {
 st_status st_run_execute(const st_run_options *opt, st_diags *diags,
                          st_run_result **out) ST_MUST_CHECK;
 void st_run_result_free(st_run_result *r);
+
+/* The default memory limit: 75 % of physical memory or 8 GiB, whichever is
+** less. */
+uint64_t st_run_default_max_memory(void);
+
+/* Estimated bytes one feature (borrowed) adds to a run's peak memory,
+** stages included (the calibration is in pipeline/guard.c). */
+struct st_feature;
+uint64_t st_run_feature_estimate(const struct st_feature *f);
 
 #endif

@@ -39,6 +39,9 @@ void st_help_run(FILE *out)
             "  --report DIR         write DIR/report.json and DIR/report.html (a\n"
             "                       self-contained page: map, charts, tables)\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
+            "  --max-memory SIZE    stop early (exit 2) rather than need more memory\n"
+            "                       than SIZE (512M, 4G ...); default: 75%% of\n"
+            "                       physical memory or 8G, whichever is less\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
             "  --timings            print the wall time of each stage (also with -q)\n"
@@ -133,6 +136,10 @@ static int parse_args(int argc, char **argv, run_args *a)
                 return st_cli_usage_error("run", "-j takes a number of threads from 1 to %d, "
                                           "not '%s'", ST_PLACE_MAX_THREADS, argv[i]);
             a->opt.threads = (unsigned)v;
+        } else if (!strcmp(arg, "--max-memory") && has_next) {
+            if (!st_cli_parse_size(argv[++i], &a->opt.max_memory))
+                return st_cli_usage_error("run", "--max-memory takes a size such as "
+                                          "512M or 4G, not '%s'", argv[i]);
         }
         else if (!strcmp(arg, "--fail-on") && has_next) {
             const char *v = argv[++i];

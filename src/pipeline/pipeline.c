@@ -10,7 +10,9 @@
 ** Errors: any input or output error stops the run before anything is
 **         renamed into place (diagnostics say where); findings never do.
 ** Memory: every feature is held until the inventory is written, because
-**         the neighbour stage needs all layers together.
+**         the neighbour stage needs all layers together; pipeline/guard.c
+**         keeps that under the run's memory limit and refuses an output
+**         that would overwrite an input, before anything is read.
 */
 #include <math.h>
 #include <stdio.h>
@@ -27,6 +29,7 @@
 #include "stocktake/neighbours.h"
 #include "stocktake/pipeline.h"
 #include "stocktake/place.h"
+#include "guardInt.h"
 #include "stocktake/report.h"
 #include "stocktake/rules.h"
 #include "pipelineInt.h"
@@ -43,6 +46,7 @@ typedef struct run_state {
     st_rules *rules;             /* NULL without -r */
     st_footprint_config fcfg;
     st_neighbours_config ncfg;
+    st_memory_budget budget;     /* --max-memory and the estimate so far */
     char started[32];            /* UTC, ISO 8601 */
     st_report_dist dist;         /* kept buildings, filled while writing */
     st_districts *districts;     /* --districts, or NULL */
@@ -140,6 +144,8 @@ static st_status read_layer(run_state *s, size_t l)
         if (!f->source_id &&
             !(f->source_id = st_strdup_printf("%llu", (unsigned long long)f->index)))
             rc = ST_ERR_NOMEM;
+        if (rc == ST_OK)
+            rc = st_run_guard_feature(&s->budget, f, st_reader_path(r), s->diags);
         if (rc == ST_OK)
             rc = push_feature(s, f);
         if (rc != ST_OK) {
@@ -416,7 +422,8 @@ static st_status count_codes(run_state *s)
         if (g->severity > r->codes[c].severity)
             r->codes[c].severity = g->severity;
     }
-    qsort(r->codes, r->ncodes, sizeof *r->codes, by_count);
+    if (r->ncodes > 1)   /* qsort of a NULL array is undefined, even of 0 items */
+        qsort(r->codes, r->ncodes, sizeof *r->codes, by_count);
     return ST_OK;
 }
 
@@ -859,6 +866,8 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
         s.res->nlayers = opt->ninputs;
         s.res->layers = st_calloc(opt->ninputs, sizeof *s.res->layers);
         if (s.res->layers)
+            rc = st_run_guard_start(opt, diags, &s.budget);
+        if (rc == ST_OK)
             rc = run_stages(&s);
     }
     for (size_t i = 0; i < s.nfeatures; i++)
