@@ -11,6 +11,9 @@
 
 #include <stdint.h>
 #include "stocktake/core.h"
+#include "stocktake/audit.h"
+#include "stocktake/defaults.h"
+#include "stocktake/place.h"
 #include "stocktake/finding.h"
 
 typedef enum { ST_FAIL_ON_NONE = 0, ST_FAIL_ON_WARNING, ST_FAIL_ON_ERROR } st_fail_on;
@@ -24,6 +27,13 @@ typedef struct st_run_options {
     const char *crs_override;    /* --crs for layers without a CRS, or NULL */
     st_fail_on fail_on;          /* findings at or above this fail the gate */
     const char *command_line;    /* recorded in run_info */
+    const char *districts;       /* --districts layer, or NULL (no placement) */
+    const char *district_key;    /* --district-key, or NULL (place.h) */
+    const char *region_key;      /* --region-key, or NULL */
+    const char *reference;       /* --reference CSV of expected counts, or NULL */
+    st_fill_mode fill;           /* --fill most-likely | draw */
+    uint64_t seed;               /* --seed for the draw */
+    unsigned threads;            /* -j: threads for placement (0 = 1) */
     const char *report_dir;      /* --report DIR: report.json and report.html
                                     written there (report.h), or NULL */
     /* Progress: called now and then from the calling thread; may be NULL. */
@@ -56,6 +66,14 @@ typedef struct st_run_unmapped {
     uint64_t count;
 } st_run_unmapped;
 
+/* Wall time of one stage of the run (monotonic clock). */
+typedef struct st_run_time {
+    const char *stage;           /* static: "read", "place", "defaults", ... */
+    double seconds;
+} st_run_time;
+
+#define ST_RUN_MAX_TIMES 16
+
 typedef struct st_run_result {
     st_run_layer *layers;
     size_t nlayers;
@@ -68,6 +86,11 @@ typedef struct st_run_result {
     size_t nunmapped;
     char **outputs;              /* files written */
     size_t noutputs;
+    st_run_time times[ST_RUN_MAX_TIMES];  /* stages in run order */
+    size_t ntimes;
+    st_audit *audit;             /* owned: the completeness audit (audit.h) */
+    st_districts *districts;     /* owned, or NULL: the district layer the
+                                    audit's polygons point into */
     char *summary;               /* owned: the terminal summary (report.h) for
                                     the CLI to print, or NULL */
 } st_run_result;

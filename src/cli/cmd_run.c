@@ -3,6 +3,7 @@
 ** the terminal summary the library rendered (report.h), choose the exit
 ** code: 0 done, 1 gate failed (outputs written), 2 error (nothing written).
 */
+#include <errno.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -23,7 +24,18 @@ void st_help_run(FILE *out)
             "                       .shp (one file per layer: OUT.set_aside.EXT,\n"
             "                       OUT.findings.EXT, OUT.run_info.csv, OUT.unmapped.csv)\n"
             "  -r, --rules FILE...  rule files (schema, footprint thresholds, map,\n"
-            "                       derive, check); see docs/rules.md\n"
+            "                       derive, check, defaults, gate); see docs/rules.md\n"
+            "  --districts FILE     district polygons (any readable layer); each building\n"
+            "                       goes to the district covering its point on surface;\n"
+            "                       adds the districts layer (docs/districts.md)\n"
+            "  --district-key FIELD the districts' key (default: the first field filled\n"
+            "                       with a distinct value on every district)\n"
+            "  --region-key FIELD   the districts' parent region, for region defaults\n"
+            "  --reference CSV      expected buildings per district (columns: key, count)\n"
+            "  --fill MODE          how defaults fill unknown fields: most-likely\n"
+            "                       (default) or draw (from the distribution, --seed)\n"
+            "  --seed N             seed of the draw (default 1)\n"
+            "  -j, --threads N      threads for placement (default 1)\n"
             "  --report DIR         write DIR/report.json and DIR/report.html (a\n"
             "                       self-contained page: map, charts, tables)\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
@@ -32,6 +44,7 @@ void st_help_run(FILE *out)
             "                       physical memory or 8G, whichever is less\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
+            "  --timings            print the wall time of each stage (also with -q)\n"
             "  -h, --help           this text\n"
             "\n"
             "INPUT: .shp, .geojson, .geojsonl, .gpkg (FILE.gpkg:LAYER for one layer).\n"
@@ -49,7 +62,22 @@ typedef struct run_args {
     const char **inputs;
     const char **rules;
     int quiet;
+    int timings;
 } run_args;
+
+/* A whole decimal number in [0, max]; 0 if it is not one. */
+static int parse_count(const char *s, unsigned long long max, unsigned long long *out)
+{
+    char *end = NULL;
+    if (!s[0] || s[0] == '-' || s[0] == '+')
+        return 0;
+    errno = 0;
+    unsigned long long v = strtoull(s, &end, 10);
+    if (errno || *end || v > max)
+        return 0;
+    *out = v;
+    return 1;
+}
 
 static void on_progress(void *ud, const char *stage, long long done, long long total)
 {
@@ -64,6 +92,8 @@ static int parse_args(int argc, char **argv, run_args *a)
     a->rules = calloc((size_t)argc, sizeof *a->rules);
     if (!a->inputs || !a->rules)
         return st_cli_usage_error("run", "out of memory");
+    a->opt.seed = 1;
+    a->opt.threads = 1;
     for (int i = 1; i < argc; i++) {
         const char *arg = argv[i];
         int has_next = i + 1 < argc;
@@ -79,7 +109,34 @@ static int parse_args(int argc, char **argv, run_args *a)
             a->opt.report_dir = argv[++i];
         else if (!strcmp(arg, "--crs") && has_next)
             a->opt.crs_override = argv[++i];
-        else if (!strcmp(arg, "--max-memory") && has_next) {
+        else if (!strcmp(arg, "--districts") && has_next)
+            a->opt.districts = argv[++i];
+        else if (!strcmp(arg, "--district-key") && has_next)
+            a->opt.district_key = argv[++i];
+        else if (!strcmp(arg, "--region-key") && has_next)
+            a->opt.region_key = argv[++i];
+        else if (!strcmp(arg, "--reference") && has_next)
+            a->opt.reference = argv[++i];
+        else if (!strcmp(arg, "--fill") && has_next) {
+            const char *v = argv[++i];
+            if (!strcmp(v, "most-likely"))
+                a->opt.fill = ST_FILL_MOST_LIKELY;
+            else if (!strcmp(v, "draw"))
+                a->opt.fill = ST_FILL_DRAW;
+            else
+                return st_cli_usage_error("run", "--fill takes most-likely or draw, not '%s'", v);
+        } else if (!strcmp(arg, "--seed") && has_next) {
+            unsigned long long v = 0;
+            if (!parse_count(argv[++i], UINT64_MAX, &v))
+                return st_cli_usage_error("run", "--seed takes a whole number, not '%s'", argv[i]);
+            a->opt.seed = v;
+        } else if ((!strcmp(arg, "-j") || !strcmp(arg, "--threads")) && has_next) {
+            unsigned long long v = 0;
+            if (!parse_count(argv[++i], ST_PLACE_MAX_THREADS, &v) || v == 0)
+                return st_cli_usage_error("run", "-j takes a number of threads from 1 to %d, "
+                                          "not '%s'", ST_PLACE_MAX_THREADS, argv[i]);
+            a->opt.threads = (unsigned)v;
+        } else if (!strcmp(arg, "--max-memory") && has_next) {
             if (!st_cli_parse_size(argv[++i], &a->opt.max_memory))
                 return st_cli_usage_error("run", "--max-memory takes a size such as "
                                           "512M or 4G, not '%s'", argv[i]);
@@ -92,7 +149,9 @@ static int parse_args(int argc, char **argv, run_args *a)
                 a->opt.fail_on = ST_FAIL_ON_ERROR;
             else
                 return st_cli_usage_error("run", "--fail-on takes warn or error, not '%s'", v);
-        } else if (!strcmp(arg, "-q") || !strcmp(arg, "--quiet"))
+        } else if (!strcmp(arg, "--timings"))
+            a->timings = 1;
+        else if (!strcmp(arg, "-q") || !strcmp(arg, "--quiet"))
             a->quiet = 1;
         else if (arg[0] == '-' && arg[1])
             return st_cli_usage_error("run", "unknown or incomplete option '%s'", arg);
@@ -103,6 +162,9 @@ static int parse_args(int argc, char **argv, run_args *a)
         return st_cli_usage_error("run", "say where to write the inventory with -o OUT");
     if (!a->opt.ninputs)
         return st_cli_usage_error("run", "give at least one input layer");
+    if ((a->opt.district_key || a->opt.region_key || a->opt.reference) && !a->opt.districts)
+        return st_cli_usage_error("run", "--district-key, --region-key and --reference "
+                                         "need --districts");
     a->opt.inputs = a->inputs;
     a->opt.rules = a->rules;
     return ST_EXIT_OK;
@@ -140,6 +202,8 @@ int st_cmd_run(int argc, char **argv)
     } else {
         if (!a.quiet && res->summary)
             fputs(res->summary, stderr);
+        for (size_t t = 0; a.timings && t < res->ntimes; t++)
+            fprintf(stderr, "timing: %-18s %9.3f s\n", res->times[t].stage, res->times[t].seconds);
         rc = res->gate_failed ? ST_EXIT_GATE : ST_EXIT_OK;
     }
     st_run_result_free(res);

@@ -1,9 +1,10 @@
 /*
 ** pipeline/pipeline.c -- one run, stage after stage, data flowing one way:
-** read -> footprint -> neighbours -> rules -> write (inventory, then the
-** report).
+** read -> footprint -> neighbours -> place -> rules (map, derive, check)
+** -> defaults -> audit -> write (inventory, then the report).
 **
-** Input:  st_run_options (input layers, output path, gate threshold).
+** Input:  st_run_options (input layers, output path, rules, districts,
+**         reference counts, fill mode and seed, gate threshold).
 ** Output: the inventory (inventory.h) and an st_run_result with the
 **         balance per layer and the findings per code.
 ** Errors: any input or output error stops the run before anything is
@@ -19,12 +20,15 @@
 #include <string.h>
 #include <time.h>
 
+#include "stocktake/audit.h"
+#include "stocktake/defaults.h"
 #include "stocktake/footprint.h"
 #include "stocktake/geomx.h"
 #include "stocktake/inventory.h"
 #include "stocktake/io.h"
 #include "stocktake/neighbours.h"
 #include "stocktake/pipeline.h"
+#include "stocktake/place.h"
 #include "guardInt.h"
 #include "stocktake/report.h"
 #include "stocktake/rules.h"
@@ -45,6 +49,10 @@ typedef struct run_state {
     st_memory_budget budget;     /* --max-memory and the estimate so far */
     char started[32];            /* UTC, ISO 8601 */
     st_report_dist dist;         /* kept buildings, filled while writing */
+    st_districts *districts;     /* --districts, or NULL */
+    st_reference *reference;     /* --reference, or NULL */
+    st_defaults *defaults;       /* with rules */
+    st_unmapped *unmapped;       /* with rules: unmapped source values */
 } run_state;
 
 /* The files a run read, hashed for the report (role and path per entry). */
@@ -267,8 +275,69 @@ static st_status apply_rules(run_state *s)
     }
     if (rc == ST_OK)
         rc = keep_unmapped(s, st_rules_ctx_unmapped(ctx));
+    if (rc == ST_OK)
+        rc = st_unmapped_new(&s->unmapped);
+    if (rc == ST_OK)
+        rc = st_unmapped_merge(s->unmapped, st_rules_ctx_unmapped(ctx));
     st_rules_ctx_free(ctx);
     return rc;
+}
+
+static int is_kept(const st_feature *f)
+{
+    return f->status == ST_STATUS_OK || f->status == ST_STATUS_REPAIRED;
+}
+
+static st_status place_buildings(run_state *s)
+{
+    if (!s->districts)
+        return ST_OK;
+    progress(s, "place", 0, (long long)s->nfeatures);
+    st_place_stats stats;
+    return st_place_features(s->districts, s->features, s->nfeatures, s->opt->threads,
+                             ST_SEV_WARNING, &s->findings, s->diags, &stats);
+}
+
+/* Read the defaults tables now: a bad table stops the run before any data
+** is read. */
+static st_status prepare_defaults(run_state *s)
+{
+    size_t n = s->districts ? st_districts_count(s->districts) : 0;
+    const char **region = st_calloc(n ? n : 1, sizeof *region);
+    if (!region)
+        return ST_ERR_NOMEM;
+    for (size_t i = 0; i < n; i++)
+        region[i] = st_districts_get(s->districts, i)->region;
+    st_defaults_places pl = {s->districts ? st_districts_keys(s->districts) : NULL, region, n};
+    st_status rc = st_defaults_new(s->rules, &pl, s->diags, &s->defaults);
+    st_free(region);
+    return rc;
+}
+
+/* Learn from the observed values, then fill what is still unknown. */
+static st_status fill_defaults(run_state *s)
+{
+    if (!s->rules)
+        return ST_OK;
+    progress(s, "defaults", 0, (long long)s->nfeatures);
+    st_status rc = st_defaults_learn(s->defaults, s->features, s->nfeatures);
+    st_rules_ctx *ctx = NULL;
+    if (rc == ST_OK)
+        rc = st_rules_ctx_new(s->rules, &ctx);
+    for (size_t i = 0; rc == ST_OK && i < s->nfeatures; i++)
+        if (is_kept(s->features[i]))
+            rc = st_defaults_apply(s->defaults, ctx, s->features[i], s->opt->fill, s->opt->seed);
+    st_rules_ctx_free(ctx);
+    return rc;
+}
+
+static st_status run_audit(run_state *s)
+{
+    int fail_on = s->opt->fail_on == ST_FAIL_ON_WARNING ? ST_SEV_WARNING
+                : s->opt->fail_on == ST_FAIL_ON_ERROR ? ST_SEV_ERROR : -1;
+    st_audit_input in = {s->features, s->nfeatures, &s->findings, s->districts, s->rules,
+                         s->defaults, s->unmapped, s->reference, fail_on};
+    return st_audit_compute(&in, s->diags, &s->res->audit);
 }
 
 /* Findings in building order (stable: a stage's own order is kept). */
@@ -358,18 +427,20 @@ static st_status count_codes(run_state *s)
     return ST_OK;
 }
 
-static void decide_gate(run_state *s)
+/* The gate as the audit judged it (rule gate lines, then --fail-on): the
+** first failing line says why. */
+static st_status decide_gate(run_state *s)
 {
     st_run_result *r = s->res;
-    st_fail_on on = s->opt->fail_on;
-    uint64_t n = on == ST_FAIL_ON_WARNING ? r->findings[ST_SEV_WARNING] + r->findings[ST_SEV_ERROR]
-               : on == ST_FAIL_ON_ERROR ? r->findings[ST_SEV_ERROR] : 0;
-    if (!n)
-        return;
-    r->gate_failed = 1;
-    r->gate_reason = st_strdup_printf("--fail-on %s: %llu finding(s) at or above that severity",
-                                      on == ST_FAIL_ON_WARNING ? "warn" : "error",
-                                      (unsigned long long)n);
+    const st_audit *a = r->audit;
+    r->gate_failed = a->gate_failed;
+    for (size_t i = 0; i < a->ngates && !r->gate_reason; i++) {
+        const st_audit_gate *g = &a->gates[i];
+        if (!g->passed && g->fails && !(r->gate_reason = st_strdup_printf("%s (%s)", g->detail,
+                                                                          g->rule)))
+            return ST_ERR_NOMEM;
+    }
+    return ST_OK;
 }
 
 /* kept (or set-aside) features in bid order */
@@ -393,7 +464,7 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     char when[32];
     st_now_iso8601(when);
     size_t nl = s->res->nlayers;
-    size_t n = 3 + nl;
+    size_t n = 3 + nl + 3;
     const char **kv = st_calloc(2 * n, sizeof *kv);
     char **owned = st_calloc(nl + 1, sizeof *owned);
     st_status rc = kv && owned ? ST_OK : ST_ERR_NOMEM;
@@ -417,9 +488,30 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
                 rc = ST_ERR_NOMEM;
         }
     }
+    char seed[32];
+    snprintf(seed, sizeof seed, "%llu", (unsigned long long)s->opt->seed);
+    size_t k = 3 + nl;
+    if (rc == ST_OK && s->districts) {
+        const st_districts *d = s->districts;
+        owned[nl] = st_strdup_printf(
+            "%s (%s): key %s, region %s, %zu districts, %zu polygon(s) repaired",
+            st_districts_path(d), st_districts_crs(d), st_districts_key_field(d),
+            st_districts_region_field(d) ? st_districts_region_field(d) : "none",
+            st_districts_count(d), st_districts_repaired(d));
+        kv[2 * k] = "districts";
+        kv[2 * k++ + 1] = owned[nl];
+        rc = owned[nl] ? ST_OK : ST_ERR_NOMEM;
+    }
+    if (s->rules) {
+        kv[2 * k] = "fill";
+        kv[2 * k++ + 1] = st_fill_mode_name(s->opt->fill);
+        kv[2 * k] = "seed";
+        kv[2 * k++ + 1] = seed;
+    }
+    n = k;
     if (rc == ST_OK)
         rc = st_inventory_write_run_info(inv, kv, n);
-    for (size_t l = 0; owned && l < nl; l++)
+    for (size_t l = 0; owned && l <= nl; l++)
         st_free(owned[l]);
     st_free(owned);
     st_free(kv);
@@ -497,6 +589,10 @@ static st_status collect_files(run_state *s, report_files *rf)
         rc = add_file(rf, "rules", st_strdup(s->opt->rules[i]));
     for (size_t i = 0; rc == ST_OK && s->rules && i < st_rules_table_count(s->rules); i++)
         rc = add_file(rf, "defaults table", st_strdup(st_rules_table(s->rules, i)->path));
+    if (rc == ST_OK && s->opt->districts)
+        rc = add_layer_files(rf, "districts", s->opt->districts);
+    if (rc == ST_OK && s->opt->reference)
+        rc = add_file(rf, "reference", st_strdup(s->opt->reference));
     if (rc == ST_OK)
         rc = st_report_hash_files(rf->items, rf->count, s->diags);
     return rc;
@@ -529,7 +625,7 @@ static void report_input(run_state *s, const report_files *rf, const char *finis
 {
     memset(in, 0, sizeof *in);
     in->run = s->res;
-    in->audit = NULL;
+    in->audit = s->res->audit;
     in->dist = &s->dist;
     in->files = rf ? rf->items : NULL;
     in->nfiles = rf ? rf->count : 0;
@@ -606,6 +702,7 @@ static st_status write_inventory(run_state *s)
     for (size_t l = 0; l < nl; l++)
         layers[l] = (st_inventory_layer){s->res->layers[l].name, &s->fields[l]};
     st_inventory *inv = NULL;
+    const char *const *names = s->districts ? st_districts_keys(s->districts) : NULL;
     size_t nk = 0, ns = 0;
     st_feature **kept = NULL, **aside = NULL;
     progress(s, "write", 0, (long long)s->nfeatures);
@@ -628,11 +725,13 @@ static st_status write_inventory(run_state *s)
     for (size_t i = 0; rc == ST_OK && i < nk; i++)
         st_report_dist_add(&s->dist, kept[i], storeys_field(s));
     if (rc == ST_OK)
-        rc = st_inventory_write_buildings(inv, kept, nk, NULL);
+        rc = st_inventory_write_buildings(inv, kept, nk, names);
     if (rc == ST_OK)
-        rc = st_inventory_write_set_aside(inv, aside, ns);
+        rc = st_inventory_write_set_aside(inv, aside, ns, names);
     if (rc == ST_OK)
         rc = st_inventory_write_findings(inv, &s->findings);
+    if (rc == ST_OK && s->districts)
+        rc = st_inventory_write_districts(inv, s->res->audit);
     if (rc == ST_OK)
         rc = write_run_info(s, inv);
     if (rc == ST_OK)
@@ -669,32 +768,82 @@ static st_status load_rules(run_state *s)
     return rc;
 }
 
-static st_status run_stages(run_state *s)
+/* Districts, reference counts and defaults tables: all read before the
+** footprints, so a bad one stops the run early. */
+static st_status load_places(run_state *s)
 {
-    st_status rc = load_rules(s);
+    st_status rc = ST_OK;
+    if (s->opt->districts) {
+        st_districts_options d = {s->opt->districts, s->opt->district_key,
+                                  s->opt->region_key, NULL};
+        progress(s, "districts", 0, 0);
+        rc = st_districts_load(&d, s->diags, &s->districts);
+    }
+    if (rc == ST_OK && s->opt->reference)
+        rc = st_reference_load(s->opt->reference, s->diags, &s->reference);
+    if (rc == ST_OK && s->rules)
+        rc = prepare_defaults(s);
+    return rc;
+}
+
+static double now_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + ts.tv_nsec / 1e9;
+}
+
+/* Run one stage unless an earlier one failed, and time it. */
+static st_status timed(run_state *s, st_status rc, const char *stage,
+                       st_status (*fn)(run_state *))
+{
+    if (rc != ST_OK)
+        return rc;
+    double t0 = now_seconds();
+    rc = fn(s);
+    st_run_result *r = s->res;
+    if (r->ntimes < ST_RUN_MAX_TIMES)
+        r->times[r->ntimes++] = (st_run_time){stage, now_seconds() - t0};
+    return rc;
+}
+
+static st_status read_layers(run_state *s)
+{
+    st_status rc = ST_OK;
     for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
         rc = read_layer(s, l);
-    if (rc == ST_OK)
-        rc = check_footprints(s);
-    if (rc == ST_OK)
-        rc = compare_neighbours(s);
-    if (rc == ST_OK)
-        rc = apply_rules(s);
-    if (rc == ST_OK) {
-        sort_findings(&s->findings);
-        tally(s);
-        rc = count_codes(s);
-    }
-    if (rc == ST_OK) {
-        decide_gate(s);
-        rc = set_outputs(s);
-    }
-    /* the summary first: once the outputs are in place nothing may fail */
-    if (rc == ST_OK)
-        rc = make_summary(s);
-    if (rc == ST_OK)
-        rc = write_inventory(s);
     return rc;
+}
+
+static st_status tally_findings(run_state *s)
+{
+    sort_findings(&s->findings);
+    tally(s);
+    return count_codes(s);
+}
+
+static st_status outputs_and_summary(run_state *s)
+{
+    st_status rc = set_outputs(s);
+    /* the summary first: once the outputs are in place nothing may fail */
+    return rc == ST_OK ? make_summary(s) : rc;
+}
+
+static st_status run_stages(run_state *s)
+{
+    st_status rc = timed(s, ST_OK, "rules", load_rules);
+    rc = timed(s, rc, "districts", load_places);
+    rc = timed(s, rc, "read", read_layers);
+    rc = timed(s, rc, "footprints", check_footprints);
+    rc = timed(s, rc, "neighbours", compare_neighbours);
+    rc = timed(s, rc, "place", place_buildings);
+    rc = timed(s, rc, "map-derive-check", apply_rules);
+    rc = timed(s, rc, "defaults", fill_defaults);
+    rc = timed(s, rc, "findings", tally_findings);
+    rc = timed(s, rc, "audit", run_audit);
+    rc = timed(s, rc, "gate", decide_gate);
+    rc = timed(s, rc, "summary", outputs_and_summary);
+    return timed(s, rc, "write", write_inventory);
 }
 
 st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_result **out)
@@ -729,7 +878,14 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     st_free(s.fields);
     st_findings_free(&s.findings);
     st_geos_free(s.gx);
+    st_defaults_free(s.defaults);
+    st_unmapped_free(s.unmapped);
+    st_reference_free(s.reference);
     st_rules_free(s.rules);
+    if (s.res)
+        s.res->districts = s.districts;   /* the audit's polygons live there */
+    else
+        st_districts_free(s.districts);
     if (rc != ST_OK) {
         if (rc == ST_ERR_NOMEM)
             st_diags_add(diags, ST_SEV_ERROR, rc, NULL, "out of memory");
@@ -753,6 +909,8 @@ void st_run_result_free(st_run_result *r)
     st_free(r->layers);
     st_free(r->codes);
     st_free(r->gate_reason);
+    st_audit_free(r->audit);
+    st_districts_free(r->districts);
     for (size_t i = 0; r->unmapped && i < r->nunmapped; i++) {
         st_free(r->unmapped[i].field);
         st_free(r->unmapped[i].value);
