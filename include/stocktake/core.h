@@ -18,6 +18,7 @@
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdint.h>
+#include <stdio.h>
 
 #define ST_VERSION "0.1.0"
 
@@ -152,6 +153,20 @@ st_status st_diag_render(const st_diag *g, st_buf *out) ST_MUST_CHECK;
 ** so the same inputs give byte-identical outputs.
 */
 void st_now_iso8601(char buf[32]);
+
+/* ---- opening input files ---------------------------------------------- */
+
+/*
+** Open 'path' for reading ("rb") only if it is a regular file: a FIFO would
+** block the open or the reads for ever, and a device may never end. The
+** check is made without blocking, on the descriptor itself. Returns the
+** stream (close with fclose), or NULL with errno set: EISDIR for a folder,
+** EINVAL for anything else that is not a regular file (st_open_error()
+** words both).
+*/
+FILE *st_fopen_regular(const char *path);
+/* Why st_fopen_regular failed, from errno (static text). */
+const char *st_open_error(int err);
 
 /* ---- small string helpers --------------------------------------------- */
 

@@ -7,7 +7,7 @@
 **          quote is an error); a leading byte-order mark is skipped; blank
 **          lines are skipped; spaces around unquoted cells are trimmed.
 ** Output:  one callback per row with its cells (borrowed for the call).
-** Errors:  ST_ERR_IO (cannot read), ST_ERR_FORMAT (bad CSV, not UTF-8),
+** Errors:  ST_ERR_IO (cannot read), ST_ERR_FORMAT (bad CSV, not UTF-8, a NUL byte),
 **          ST_ERR_LIMIT (see below), each with a diagnostic "file:line:";
 **          whatever the callback returns stops the reading.
 ** Limits:  'max_bytes' of file, ST_CSV_MAX_COLUMNS cells a row,

@@ -51,6 +51,9 @@ static void on_cell(void *s, size_t len, void *ud)
                              "a cell longer than %d bytes", ST_CSV_MAX_CELL);
     else if (st_utf8_valid_prefix(s ? s : "", s ? len : 0) != (s ? len : 0))
         r->rc = st_diags_add(r->diags, ST_SEV_ERROR, ST_ERR_FORMAT, &loc, "not UTF-8 text");
+    else if (s && memchr(s, 0, len))   /* a C string would silently end there */
+        r->rc = st_diags_add(r->diags, ST_SEV_ERROR, ST_ERR_FORMAT, &loc,
+                             "a NUL byte in a cell (not text)");
     else if (!(r->cells[r->ncells] = st_strndup(s ? s : "", s ? len : 0)))
         r->rc = ST_ERR_NOMEM;
     else
@@ -70,10 +73,10 @@ static st_status read_file(reader *r, size_t max_bytes, char **text, size_t *len
 {
     *text = NULL;
     st_loc loc = ST_LOC_FILE(r->path);
-    FILE *fp = fopen(r->path, "rb");
+    FILE *fp = st_fopen_regular(r->path);   /* a FIFO would block for ever */
     if (!fp)
         return st_diags_add(r->diags, ST_SEV_ERROR, ST_ERR_IO, &loc, "cannot open: %s",
-                            strerror(errno));
+                            st_open_error(errno));
     st_buf b;
     st_buf_init(&b, max_bytes);
     char chunk[65536];

@@ -44,7 +44,6 @@
 ** encoding becomes U+FFFD (iconv errors, then st_utf8_sanitize).
 */
 #include <errno.h>
-#include <fcntl.h>
 #include <iconv.h>
 #include <limits.h>
 #include <math.h>
@@ -53,7 +52,6 @@
 #include <string.h>
 #include <strings.h>
 #include <sys/stat.h>
-#include <unistd.h>
 
 #include <shapefil.h>
 
@@ -149,22 +147,9 @@ static SAFile hook_open(const char *path, const char *access)
 {
     if (strchr(access, 'w') || strchr(access, '+') || strchr(access, 'a'))
         return (SAFile)fopen(path, access);
-    int fd = open(path, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
-    if (fd < 0)
-        return NULL;
-    struct stat st;
-    if (fstat(fd, &st) != 0 || !S_ISREG(st.st_mode)) {
-        close(fd);
+    FILE *fp = st_fopen_regular(path);
+    if (!fp && errno == EINVAL)
         capture_note("not a regular file", path);
-        errno = EINVAL;
-        return NULL;
-    }
-    int flags = fcntl(fd, F_GETFL);
-    if (flags >= 0)
-        fcntl(fd, F_SETFL, flags & ~O_NONBLOCK);
-    FILE *fp = fdopen(fd, access);
-    if (!fp)
-        close(fd);
     return (SAFile)fp;
 }
 
@@ -177,7 +162,7 @@ static FILE *open_for_reading(const char *path)
 /* Why open_for_reading failed (right after it). */
 static const char *open_error(void)
 {
-    return errno == EINVAL ? "not a regular file (a FIFO or a device)" : strerror(errno);
+    return st_open_error(errno);
 }
 
 /* Shapelib's stdio hooks with our error and write checks. */
