@@ -46,6 +46,18 @@ for seed in 1 2 3 4 5 6 7 8 9 10 11 12; do
     all_commands any "flip$seed.geojson" "$IN/flip$seed.geojson"
 done
 
+# ---- the same for GeoJSON sequences (one Feature a line) ---------------------------------
+"$STOCKTAKE" convert -q "$SRC" "$TMP/src.geojsonl" || fail "cannot make a GeoJSONL"
+for pct in 10 50 90; do
+    truncate_to "$TMP/src.geojsonl" $pct "$IN/cut$pct.geojsonl"
+    h_case "geojsonl truncated to $pct%" "$IN/cut$pct.geojsonl"
+    all_commands 2 "cut$pct.geojsonl" "$IN/cut$pct.geojsonl"
+done
+for seed in 1 2 3 4 5 6; do
+    flip_bits "$TMP/src.geojsonl" "$seed" 4 "$IN/flip$seed.geojsonl"
+    h_case "geojsonl 4 bits flipped (seed $seed)" "$IN/flip$seed.geojsonl"
+    all_commands any "flip$seed.geojsonl" "$IN/flip$seed.geojsonl"
+done
 BALOPT=""
 
 # ---- wrong magic: other formats under a .geojson name ----------------------------------
@@ -108,9 +120,11 @@ for v in 1e308 -1e308 1e400 1e-400 123456789012345678901234567890; do
     # An infinite coordinate (1e400 overflows) is set aside with its
     # geometry as read, which GeoJSON cannot hold: that run stops (exit 2,
     # nothing written) naming the feature; the others go on.
-    h_run any "infinite" "$STOCKTAKE" run -q -o "$HOUT/inv.geojson" "$f"
+    h_run any "infinite" "$STOCKTAKE" run -o "$HOUT/inv.geojson" "$f"
     if [ "$H_RC" -le 1 ]; then
         $BAL "$HOUT/inv.geojson" "$f" >"$TMP/bal" 2>&1 || { cat "$TMP/bal" >&2; h_fail "balance"; }
+        # the run went on: with a finding, unless the number was harmless
+        case $v in 1e-400) ;; *) grep -q "geom\." "$TMP/stderr" || h_fail "no finding for $v" ;; esac
     elif [ "$v" != 1e400 ]; then
         h_fail "run stopped on a finite coordinate $v"
     fi
