@@ -78,26 +78,34 @@ static const char *extension(const char *path)
     return dot ? dot : "";
 }
 
+static void free_list(char **list);
+
 /* Every file the inventory may write for 'out', NULL-terminated; returns
 ** owned array of owned strings (free with free_list), NULL on no memory. */
 static char **output_files(const char *out)
 {
     static const char *const siblings[] = {"set_aside", "findings", "districts", "run_info"};
     const size_t ns = sizeof siblings / sizeof siblings[0];
-    char **list = st_calloc(2 * ns + 2, sizeof *list);
-    if (!list || !(list[0] = st_strdup(out)))
-        return list;
-    size_t k = 1;
-    char *csv = NULL;
+    const size_t n = 1 + 2 * ns;
+    char **list = st_calloc(n + 1, sizeof *list);
     const char *ext = extension(out);
     size_t stem = strlen(out) - strlen(ext);
-    if (!(csv = st_strdup_printf("%.*s.csv", (int)stem, out)))
-        return list;
-    for (size_t i = 0; i < ns; i++) {
-        list[k++] = st_inventory_sibling_path(out, siblings[i]);
-        list[k++] = st_inventory_sibling_path(csv, siblings[i]);
+    char *csv = st_strdup_printf("%.*s.csv", (int)stem, out);
+    if (list && csv) {
+        list[0] = st_strdup(out);
+        for (size_t i = 0; i < ns; i++) {
+            list[1 + 2 * i] = st_inventory_sibling_path(out, siblings[i]);
+            list[2 + 2 * i] = st_inventory_sibling_path(csv, siblings[i]);
+        }
     }
     st_free(csv);
+    for (size_t i = 0; list && i < n; i++)
+        if (!list[i]) {
+            for (size_t k = 0; k < n; k++)
+                st_free(list[k]);
+            st_free(list);
+            return NULL;
+        }
     return list;
 }
 
