@@ -1,7 +1,7 @@
 # stocktake -- plain Makefile. Libraries through pkg-config; libcsv ships no
 # .pc file on Debian, so it is linked by name.
 #
-# Targets: all check demo bench install clean deps (see DEVELOPERS.md)
+# Targets: all check demo bench bench-compare install clean deps (see DEVELOPERS.md)
 #   make BUILD=dir      build into another folder (parallel work trees)
 #   make SANITIZE=1     AddressSanitizer + UndefinedBehaviorSanitizer
 
@@ -36,7 +36,7 @@ LIB      := $(BUILD)/libstocktake.a
 BIN      := $(BUILD)/stocktake
 TESTS    := $(TEST_SRC:tests/unit/%.c=$(BUILD)/tests/%)
 
-.PHONY: all check unit e2e ref demo bench deps install clean symbols
+.PHONY: all check unit e2e ref demo bench bench-compare deps install clean symbols
 
 all: $(BIN)
 
@@ -80,9 +80,21 @@ demo: deps
 	@$(MAKE) --no-print-directory all
 	@STOCKTAKE=$(abspath $(BIN)) sh scripts/demo.sh
 
+# The floor of the geometry stage (bench/floor.c): not part of the library.
+FLOOR := $(BUILD)/bench/floor
+$(FLOOR): bench/floor.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) $(ALL_LDFLAGS) -o $@ $< $(PKG_LIBS)
+
+# Benchmarks are never part of check or CI.
 bench: deps
+	@$(MAKE) --no-print-directory all $(FLOOR)
+	@STOCKTAKE=$(abspath $(BIN)) FLOOR=$(abspath $(FLOOR)) sh bench/run.sh
+
+# stocktake against bench/peer.py (geopandas) on the same files, same session.
+bench-compare: deps
 	@$(MAKE) --no-print-directory all
-	@STOCKTAKE=$(abspath $(BIN)) sh bench/run.sh
+	@STOCKTAKE=$(abspath $(BIN)) sh bench/compare.sh
 
 install: $(BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/man/man1

@@ -49,6 +49,17 @@ typedef struct st_run_unmapped {
     uint64_t count;
 } st_run_unmapped;
 
+/* Time and memory of one stage of a run (all the run's threads together). */
+#define ST_RUN_MAX_TIMINGS 16
+typedef struct st_run_timing {
+    const char *stage;           /* static: "read", "footprint", ... "total" */
+    double wall_s;               /* elapsed seconds */
+    double cpu_s;                /* CPU seconds, user + system, all threads */
+    uint64_t items;              /* features the stage went through */
+    long peak_rss_kb;            /* the process's peak resident set so far,
+                                    at the stage's end (0: unknown) */
+} st_run_timing;
+
 typedef struct st_run_result {
     st_run_layer *layers;
     size_t nlayers;
@@ -61,6 +72,9 @@ typedef struct st_run_result {
     size_t nunmapped;
     char **outputs;              /* files written */
     size_t noutputs;
+    st_run_timing timings[ST_RUN_MAX_TIMINGS];  /* stages in run order, then
+                                    "total"; for `run --timings` and bench */
+    size_t ntimings;
 } st_run_result;
 
 /*

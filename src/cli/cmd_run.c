@@ -26,6 +26,8 @@ void st_help_run(FILE *out)
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
+            "  --timings            after the run, a table of each stage's wall and\n"
+            "                       CPU seconds, footprints per second and peak memory\n"
             "  -h, --help           this text\n"
             "\n"
             "INPUT: .shp, .geojson, .geojsonl, .gpkg (FILE.gpkg:LAYER for one layer).\n"
@@ -42,6 +44,7 @@ typedef struct run_args {
     const char **inputs;
     const char **rules;
     int quiet;
+    int timings;
 } run_args;
 
 static void on_progress(void *ud, const char *stage, long long done, long long total)
@@ -80,6 +83,8 @@ static int parse_args(int argc, char **argv, run_args *a)
                 return st_cli_usage_error("run", "--fail-on takes warn or error, not '%s'", v);
         } else if (!strcmp(arg, "-q") || !strcmp(arg, "--quiet"))
             a->quiet = 1;
+        else if (!strcmp(arg, "--timings"))
+            a->timings = 1;
         else if (arg[0] == '-' && arg[1])
             return st_cli_usage_error("run", "unknown or incomplete option '%s'", arg);
         else
@@ -127,6 +132,18 @@ static void print_summary(const st_run_result *r, const char *output)
     fprintf(stderr, "inventory: %s\n", output);
 }
 
+/* One line per stage; the bench scripts read these lines (keep the form). */
+static void print_timings(const st_run_result *r)
+{
+    fprintf(stderr, "\n%-12s %10s %10s %14s %12s\n", "stage", "wall s", "cpu s",
+            "footprints/s", "peak MB");
+    for (size_t i = 0; i < r->ntimings; i++) {
+        const st_run_timing *t = &r->timings[i];
+        fprintf(stderr, "%-12s %10.3f %10.3f %14.0f %12.1f\n", t->stage, t->wall_s, t->cpu_s,
+                t->wall_s > 0 ? (double)t->items / t->wall_s : 0.0, (double)t->peak_rss_kb / 1024.0);
+    }
+}
+
 int st_cmd_run(int argc, char **argv)
 {
     run_args a;
@@ -159,6 +176,8 @@ int st_cmd_run(int argc, char **argv)
     } else {
         if (!a.quiet)
             print_summary(res, a.opt.output);
+        if (a.timings)
+            print_timings(res);
         rc = res->gate_failed ? ST_EXIT_GATE : ST_EXIT_OK;
     }
     st_run_result_free(res);

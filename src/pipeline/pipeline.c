@@ -14,6 +14,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/resource.h>
 #include <time.h>
 
 #include "stocktake/footprint.h"
@@ -435,18 +436,61 @@ static st_status load_rules(run_state *s)
     return rc;
 }
 
+/* ---- timings (run --timings, bench) -------------------------------------- */
+
+typedef struct clock_pair {
+    double wall, cpu;
+} clock_pair;
+
+static clock_pair clock_now(void)
+{
+    struct timespec w = {0, 0}, c = {0, 0};
+    clock_gettime(CLOCK_MONOTONIC, &w);
+    clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &c);
+    return (clock_pair){(double)w.tv_sec + (double)w.tv_nsec * 1e-9,
+                        (double)c.tv_sec + (double)c.tv_nsec * 1e-9};
+}
+
+static long peak_rss_kb(void)
+{
+    struct rusage u;
+    return getrusage(RUSAGE_SELF, &u) == 0 ? u.ru_maxrss : 0;   /* kB on Linux */
+}
+
+/* Record the stage that began at 'since'; returns the time now, where the
+** next stage begins. */
+static clock_pair stage_done(run_state *s, const char *stage, clock_pair since, uint64_t items)
+{
+    clock_pair t = clock_now();
+    st_run_result *r = s->res;
+    if (r->ntimings < ST_RUN_MAX_TIMINGS)
+        r->timings[r->ntimings++] = (st_run_timing){stage, t.wall - since.wall, t.cpu - since.cpu,
+                                                    items, peak_rss_kb()};
+    return t;
+}
+
 static st_status run_stages(run_state *s)
 {
+    clock_pair start = clock_now(), t = start;
     st_status rc = load_rules(s);
     for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
         rc = read_layer(s, l);
-    if (rc == ST_OK)
-        rc = check_footprints(s);
-    if (rc == ST_OK)
-        rc = compare_neighbours(s);
-    if (rc == ST_OK)
-        rc = apply_rules(s);
+    uint64_t n = s->nfeatures;
     if (rc == ST_OK) {
+        t = stage_done(s, "read", t, n);
+        rc = check_footprints(s);
+    }
+    if (rc == ST_OK) {
+        t = stage_done(s, "footprint", t, n);
+        rc = compare_neighbours(s);
+    }
+    if (rc == ST_OK) {
+        t = stage_done(s, "neighbours", t, n);
+        rc = apply_rules(s);
+    }
+    if (rc == ST_OK) {
+        if (s->rules)
+            t = stage_done(s, "rules", t, n);
         sort_findings(&s->findings);
         tally(s);
         rc = count_codes(s);
@@ -454,6 +498,10 @@ static st_status run_stages(run_state *s)
     if (rc == ST_OK) {
         decide_gate(s);
         rc = write_inventory(s);
+    }
+    if (rc == ST_OK) {
+        t = stage_done(s, "write", t, n);
+        stage_done(s, "total", start, n);
     }
     return rc;
 }
