@@ -9,7 +9,7 @@ libsqlite3-dev libpcre2-dev libyajl-dev libcsv-dev libcmocka-dev"
 # Tests: outside references (GDAL, PROJ tools, shapely/pyproj/geopandas
 # on Debian's python), and the sqlite3 shell.
 TEST_PKGS="gdal-bin python3-gdal proj-bin python3-pyproj python3-shapely
-python3-geopandas shapelib sqlite3 valgrind"
+python3-geopandas shapelib sqlite3 valgrind time"
 
 missing=""
 for p in $BUILD_PKGS $TEST_PKGS; do

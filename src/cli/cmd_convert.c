@@ -126,6 +126,9 @@ static st_status check_interrupt(st_diags *diags)
 
 typedef struct survey {
     st_fields fields;      /* every field, in the order first seen */
+    size_t *maxlen;        /* per field: longest value in bytes */
+    uint8_t *not_number;   /* per field: a value that is no number was seen */
+    uint32_t nmaxlen;
     unsigned types;        /* bit (1 << st_geom_type) per geometry type seen */
     uint64_t features;
     char *layer;           /* owned layer name */
@@ -141,6 +144,57 @@ static void progress_tick(st_progress *p, const st_reader *r, uint64_t n, uint64
         st_progress_update(p, (long long)n, (long long)total, (long long)n);
     else
         st_progress_update(p, done, all, (long long)n);
+}
+
+/* Longest value of each field, so fixed-width formats (the Shapefile's
+** .dbf) can size text columns to the data instead of 254 bytes each. */
+static st_status measure_values(survey *s, const st_feature *f)
+{
+    if (f->nvalues > s->nmaxlen) {
+        size_t *m = st_realloc(s->maxlen, f->nvalues * sizeof *m);
+        if (m)
+            s->maxlen = m;
+        uint8_t *b = st_realloc(s->not_number, f->nvalues);
+        if (b)
+            s->not_number = b;
+        if (!m || !b)
+            return ST_ERR_NOMEM;
+        memset(m + s->nmaxlen, 0, (f->nvalues - s->nmaxlen) * sizeof *m);
+        memset(b + s->nmaxlen, 0, f->nvalues - s->nmaxlen);
+        s->nmaxlen = f->nvalues;
+    }
+    for (uint32_t i = 0; i < f->nvalues; i++)
+        if (f->values[i] && f->values[i][0]) {
+            size_t n = strlen(f->values[i]);
+            if (n > s->maxlen[i])
+                s->maxlen[i] = n;
+            char *end;
+            strtod(f->values[i], &end);
+            if (*end)
+                s->not_number[i] = 1;
+        }
+    return ST_OK;
+}
+
+/* Text fields without a width from their source get the longest value seen
+** (at least 1, at most the 254 a .dbf allows; longer values are cut by the
+** writer, which says so). */
+static void size_text_fields(survey *s)
+{
+    for (uint32_t i = 0; i < s->fields.count; i++) {
+        st_field *f = &s->fields.items[i];
+        /* GeoJSON types a field by its first value: a later "PB+2" in a
+        ** field that began with 2 makes it text, so no value is lost. */
+        if ((f->type == ST_FIELD_INTEGER || f->type == ST_FIELD_REAL) &&
+            i < s->nmaxlen && s->not_number[i]) {
+            f->type = ST_FIELD_TEXT;
+            f->width = 0;
+        }
+        if (f->width > 0 || (f->type != ST_FIELD_TEXT && f->type != ST_FIELD_JSON))
+            continue;
+        size_t n = i < s->nmaxlen ? s->maxlen[i] : 0;
+        f->width = n < 1 ? 1 : n > 254 ? 254 : (int)n;
+    }
 }
 
 static st_status survey_input(const char *in, const st_read_options *ropt,
@@ -162,12 +216,17 @@ static st_status survey_input(const char *in, const st_read_options *ropt,
         if (f->geom.type != ST_GEOM_NULL && f->geom.type != ST_GEOM_OTHER)
             s->types |= 1u << f->geom.type;
         s->features++;
+        rc = measure_values(s, f);
         st_feature_free(f);
+        if (rc != ST_OK)
+            break;
         progress_tick(&p, r, s->features, 0);
     }
     st_progress_end(&p);
     if (rc == ST_OK)
         rc = st_fields_copy(&s->fields, st_reader_fields(r));
+    if (rc == ST_OK)
+        size_text_fields(s);
     if (rc == ST_OK && !(s->layer = st_strdup(st_reader_layer_name(r))))
         rc = ST_ERR_NOMEM;
     st_reader_close(r);
@@ -317,6 +376,8 @@ static st_status convert(const convert_opts *o, st_diags *diags, uint64_t *writt
     }
     st_writer_close(w);   /* without a commit: the temporary output goes */
     st_fields_free(&s.fields);
+    st_free(s.maxlen);
+    st_free(s.not_number);
     st_free(s.layer);
     return rc;
 }

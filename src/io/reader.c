@@ -78,6 +78,7 @@ static st_status setup_crs(st_reader *r)
                               "the layer has no coordinate reference system; "
                               "say which one with --crs EPSG:NNNN");
     if (r->opt.keep_source_crs || st_crs_is_wgs84(def)) {
+        /* a CRS PROJ cannot name is shown as written */
         r->crs_name = st_crs_identify(def);
         if (!r->crs_name)
             r->crs_name = st_strdup(def);

@@ -92,7 +92,10 @@ st_status st_writer_open(const char *path, st_diags *diags, st_writer **out)
 st_status st_writer_begin_layer(st_writer *w, const char *name,
                                 const st_fields *fields, st_geom_type type)
 {
-    if (w->in_layer || (w->layers_begun && !w->fmt->multi_layer))
+    if (w->in_layer)
+        return st_writer_fail(w, ST_ERR_USAGE,
+                              "layer '%s' begun before the previous one ended", name);
+    if (w->layers_begun && !w->fmt->multi_layer)
         return st_writer_fail(w, ST_ERR_USAGE,
                               "format %s holds one layer only", w->fmt->name);
     st_status rc = w->fmt->begin_layer(w, name, fields, type);

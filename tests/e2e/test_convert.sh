@@ -168,5 +168,28 @@ else
     expect_stderr "note: .*building_levels_above_ground"
 fi
 
+# A field whose first value is a number but a later one is not ("PB+2")
+# becomes text, so no value is lost; Shapefile text columns are sized to
+# the longest value, not 254 bytes (read back with GDAL, the reference).
+cat > "$TMP/mixed.geojson" <<'JSON'
+{"type":"FeatureCollection","features":[
+{"type":"Feature","properties":{"N":2,"name":"ab"},"geometry":{"type":"Polygon","coordinates":[[[1,1],[1.001,1],[1.001,1.001],[1,1]]]}},
+{"type":"Feature","properties":{"N":"PB+2","name":"abcdefg"},"geometry":{"type":"Polygon","coordinates":[[[2,2],[2.001,2],[2.001,2.001],[2,2]]]}}
+]}
+JSON
+expect_rc 0 "$STOCKTAKE" convert -q "$TMP/mixed.geojson" "$TMP/mixed.shp"
+$PY - "$TMP/mixed.shp" <<'PY' || fail "mixed-type field or text width"
+import sys
+from osgeo import ogr
+ds = ogr.Open(sys.argv[1])
+l = ds.GetLayer(0)
+d = l.GetLayerDefn()
+n = d.GetFieldDefn(d.GetFieldIndex("N"))
+name = d.GetFieldDefn(d.GetFieldIndex("name"))
+assert n.GetType() == ogr.OFTString, n.GetTypeName()
+assert name.GetWidth() == 7, name.GetWidth()
+assert sorted(f.GetField("N") for f in l) == ["2", "PB+2"]
+PY
+
 [ -z "$missing" ] || skip "writers not built yet:$missing (other checks passed)"
 exit 0

@@ -6,6 +6,9 @@
 
 expect_rc 0 "$STOCKTAKE" lint "$ROOT/rules/starter.rules"
 grep -qx "lint: 1 file, 0 errors, 0 warnings" "$TMP/stderr" || fail "starter summary: $(cat "$TMP/stderr")"
+# the demo town's pack lints clean too
+expect_rc 0 "$STOCKTAKE" lint "$ROOT/rules/demo.rules"
+grep -qx "lint: 1 file, 0 errors, 0 warnings" "$TMP/stderr" || fail "demo summary: $(cat "$TMP/stderr")"
 
 cat >"$TMP/broken.rules" <<'RULES'
 schema
