@@ -143,6 +143,14 @@ void st_diags_set_excerpt(st_diags *d, const char *line, size_t n);
 ** into 'out' (appends). */
 st_status st_diag_render(const st_diag *g, st_buf *out) ST_MUST_CHECK;
 
+/* ---- time written into outputs ------------------------------------------ */
+
+/* The current UTC time as "YYYY-MM-DDTHH:MM:SSZ" (millis = 0) or
+** "YYYY-MM-DDTHH:MM:SS.mmmZ" into buf (n >= 32 always fits). Taken from
+** SOURCE_DATE_EPOCH when it holds a whole number of seconds, so that runs
+** can be made byte-identical; else from the clock. */
+void st_timestamp(char *buf, size_t n, int millis);
+
 /* ---- small string helpers --------------------------------------------- */
 
 /* 1 if s ends with suffix, compared ASCII case-insensitively. */

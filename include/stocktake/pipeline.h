@@ -24,6 +24,9 @@ typedef struct st_run_options {
     const char *crs_override;    /* --crs for layers without a CRS, or NULL */
     st_fail_on fail_on;          /* findings at or above this fail the gate */
     const char *command_line;    /* recorded in run_info */
+    unsigned threads;            /* -j: worker threads of the per-feature
+                                    stages; 0 = the number of online cores.
+                                    The outputs are the same for any value. */
     /* Progress: called now and then from the calling thread; may be NULL. */
     void (*progress)(void *ud, const char *stage, long long done, long long total);
     void *progress_ud;

@@ -24,6 +24,8 @@ void st_help_run(FILE *out)
             "  -r, --rules FILE...  rule files (schema, footprint thresholds, map,\n"
             "                       derive, check); see docs/rules.md\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
+            "  -j, --threads N      worker threads (default: the number of cores); the\n"
+            "                       outputs are the same for any N\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
             "  --timings            after the run, a table of each stage's wall and\n"
@@ -71,6 +73,14 @@ static int parse_args(int argc, char **argv, run_args *a)
             while (i + 1 < argc && argv[i + 1][0] != '-' &&
                    st_str_ends_with_ci(argv[i + 1], ".rules"))
                 a->rules[a->opt.nrules++] = argv[++i];
+        } else if ((!strcmp(arg, "-j") || !strcmp(arg, "--threads")) && has_next) {
+            const char *v = argv[++i];
+            char *end = NULL;
+            long n = strtol(v, &end, 10);
+            if (!*v || *end || n < 1 || n > 64)
+                return st_cli_usage_error("run", "-j takes a number of threads from 1 to 64, not '%s'",
+                                          v);
+            a->opt.threads = (unsigned)n;
         } else if (!strcmp(arg, "--crs") && has_next)
             a->opt.crs_override = argv[++i];
         else if (!strcmp(arg, "--fail-on") && has_next) {
@@ -160,9 +170,15 @@ int st_cmd_run(int argc, char **argv)
     a.opt.progress_ud = &p;
     st_buf cmd;
     st_buf_init(&cmd, 1 << 16);
-    for (int i = 0; i < argc; i++)
+    /* -j is left out of the recorded command: it changes no output. */
+    for (int i = 0; i < argc; i++) {
+        if ((!strcmp(argv[i], "-j") || !strcmp(argv[i], "--threads")) && i + 1 < argc) {
+            i++;
+            continue;
+        }
         if (st_buf_printf(&cmd, "%s%s", i ? " " : "stocktake ", argv[i]) != ST_OK)
             break;
+    }
     a.opt.command_line = cmd.data;
     st_diags d;
     st_diags_init(&d);
