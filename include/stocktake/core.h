@@ -143,13 +143,15 @@ void st_diags_set_excerpt(st_diags *d, const char *line, size_t n);
 ** into 'out' (appends). */
 st_status st_diag_render(const st_diag *g, st_buf *out) ST_MUST_CHECK;
 
-/* ---- time written into outputs ------------------------------------------ */
+/* ---- time ----------------------------------------------------------------- */
 
-/* The current UTC time as "YYYY-MM-DDTHH:MM:SSZ" (millis = 0) or
-** "YYYY-MM-DDTHH:MM:SS.mmmZ" into buf (n >= 32 always fits). Taken from
-** SOURCE_DATE_EPOCH when it holds a whole number of seconds, so that runs
-** can be made byte-identical; else from the clock. */
-void st_timestamp(char *buf, size_t n, int millis);
+/*
+** The run's clock as ISO 8601 UTC ("2026-12-02T04:10:00Z") into buf. When
+** the environment sets SOURCE_DATE_EPOCH (seconds since 1970, the common
+** convention for reproducible outputs) that time is used instead of now,
+** so the same inputs give byte-identical outputs.
+*/
+void st_now_iso8601(char buf[32]);
 
 /* ---- small string helpers --------------------------------------------- */
 

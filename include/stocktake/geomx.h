@@ -17,6 +17,8 @@
 typedef struct st_geos {
     GEOSContextHandle_t h;
     char last_error[512];   /* GEOS's last error message, "" if none */
+    st_status last_status;  /* why the last st_geom_to_geos returned NULL:
+                               ST_ERR_NOMEM (our allocation) or ST_ERR_GEOS */
 } st_geos;
 
 /* Returns owned context (NULL on no memory); free with st_geos_free. */
@@ -28,7 +30,8 @@ void st_geos_clear_error(st_geos *g);
 /*
 ** Build a GEOS geometry from g (borrowed). Returns owned GEOS geometry
 ** (destroy with GEOSGeom_destroy_r(gx->h, ...)) or NULL: then 'err' says
-** why (unclosed ring, too few points, ...). Rings are passed as they are:
+** why (unclosed ring, too few points, ...) and gx->last_status whether it
+** was a lack of memory (ST_ERR_NOMEM) or the geometry (ST_ERR_GEOS). Rings are passed as they are:
 ** an unclosed ring is an error here, not silently closed.
 */
 GEOSGeometry *st_geom_to_geos(st_geos *gx, const st_geom *g,

@@ -5,6 +5,10 @@
 ** single-layer formats (OUT.geojson, OUT.set_aside.geojson,
 ** OUT.findings.geojson, OUT.run_info.csv ...).
 **
+** source_id is the layer's own id (GeoJSON id, GeoPackage fid, Shapefile
+** record number), or the feature's 0-based position in its layer when the
+** layer has none.
+**
 ** Column layout (docs/output.md):
 **   buildings  bid layer source_id status area_m2 perimeter_m flags district
 **              [<field> <field>_from <field>_rule]... then every source

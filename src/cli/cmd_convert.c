@@ -12,8 +12,9 @@
 **          (GeoJSON has no fixed schema: a field may first appear in the
 **          last feature), the geometry types (so OUT declares one type that
 **          fits every feature: Polygon alone stays Polygon, Polygon mixed
-**          with MultiPolygon becomes MultiPolygon, no geometry at all makes
-**          an attribute table, mixed kinds a geometry collection) and checks
+**          with MultiPolygon becomes MultiPolygon, features that all lack a
+**          geometry make an attribute table, no features at all a Polygon
+**          layer, mixed kinds a geometry collection) and checks
 **          every coordinate, so a bad input fails before OUT is begun. The
 **          second pass writes.
 ** Errors:  any failure prints the library's diagnostic (file and place),
@@ -312,7 +313,10 @@ static st_status write_output(const convert_opts *o, const st_read_options *ropt
     st_status rc = st_reader_open(o->in, ropt, diags, &r);
     if (rc != ST_OK)
         return rc;
-    rc = st_writer_begin_layer(w, s->layer, &s->fields, declared_type(s->types));
+    /* A layer without features gives no hint: declare what a footprint
+    ** layer holds rather than an attribute table. */
+    st_geom_type type = s->features ? declared_type(s->types) : ST_GEOM_POLYGON;
+    rc = st_writer_begin_layer(w, s->layer, &s->fields, type);
     field_map m = {NULL, 0, 1, NULL};
     st_progress p;
     st_progress_start(&p, "writing", o->quiet);

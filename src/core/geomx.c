@@ -72,6 +72,7 @@ static GEOSGeometry *make_polygon(st_geos *gx, const st_geom *g, uint32_t p,
     GEOSGeometry **rings = st_malloc((r1 - r0) * sizeof *rings);
     if (!rings) {
         set_err(err, errlen, "%s", "out of memory");
+        gx->last_status = ST_ERR_NOMEM;
         return NULL;
     }
     uint32_t made = 0;
@@ -116,9 +117,20 @@ static GEOSGeometry *make_point(st_geos *gx, const st_geom *g, uint32_t p)
     return GEOSGeom_createPointFromXY_r(gx->h, c[0], c[1]);
 }
 
+static GEOSGeometry *build_geos(st_geos *gx, const st_geom *g, char *err, size_t errlen);
+
 GEOSGeometry *st_geom_to_geos(st_geos *gx, const st_geom *g, char *err, size_t errlen)
 {
     st_geos_clear_error(gx);
+    gx->last_status = ST_OK;
+    GEOSGeometry *out = build_geos(gx, g, err, errlen);
+    if (!out && gx->last_status == ST_OK)
+        gx->last_status = ST_ERR_GEOS;
+    return out;
+}
+
+static GEOSGeometry *build_geos(st_geos *gx, const st_geom *g, char *err, size_t errlen)
+{
     int multi_type;
     switch (g->type) {
     case ST_GEOM_NULL:
@@ -141,6 +153,7 @@ GEOSGeometry *st_geom_to_geos(st_geos *gx, const st_geom *g, char *err, size_t e
     GEOSGeometry **parts = st_malloc(g->nparts * sizeof *parts);
     if (!parts) {
         set_err(err, errlen, "%s", "out of memory");
+        gx->last_status = ST_ERR_NOMEM;
         return NULL;
     }
     uint32_t made = 0;

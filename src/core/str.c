@@ -1,8 +1,11 @@
 /*
-** core/str.c -- small string helpers: suffix tests and UTF-8 validation.
+** core/str.c -- small string helpers: suffix tests, UTF-8 validation, and
+** the run's clock (honouring SOURCE_DATE_EPOCH).
 */
 #include <ctype.h>
+#include <stdlib.h>
 #include <string.h>
+#include <time.h>
 
 #include "stocktake/core.h"
 
@@ -71,4 +74,19 @@ char *st_utf8_sanitize(const char *s, size_t n)
         i += k ? k : 1;
     }
     return st_buf_take(&b);
+}
+
+void st_now_iso8601(char buf[32])
+{
+    time_t t = time(NULL);
+    const char *epoch = getenv("SOURCE_DATE_EPOCH");
+    if (epoch && *epoch) {
+        char *end;
+        long long v = strtoll(epoch, &end, 10);
+        if (!*end && v >= 0)
+            t = (time_t)v;
+    }
+    struct tm tmv;
+    if (!gmtime_r(&t, &tmv) || !strftime(buf, 32, "%Y-%m-%dT%H:%M:%SZ", &tmv))
+        strcpy(buf, "1970-01-01T00:00:00Z");
 }

@@ -406,7 +406,7 @@ static st_status check_validity(fp_run *r)
     st_geos *gx = r->ck->gx;
     char err[256] = "";
     GEOSGeometry *g = st_geom_to_geos(gx, &r->work, err, sizeof err);
-    if (!g && st_fp_out_of_memory(err))
+    if (!g && st_fp_out_of_memory(gx))
         return ST_ERR_NOMEM;
     if (!g)
         return geos_failed(r, err[0] ? err : "cannot build the geometry");

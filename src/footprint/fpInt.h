@@ -61,7 +61,7 @@ double st_fp_part_area(const st_footprint_checker *ck, const st_geom *g, uint32_
 
 /* 1 when st_geom_to_geos failed for want of memory (its only way to say
 ** so is its message), so the caller returns ST_ERR_NOMEM, not a finding. */
-int st_fp_out_of_memory(const char *geos_err);
+int st_fp_out_of_memory(const st_geos *gx);
 
 /* What the repair did, for the findings. */
 typedef struct fp_repair_info {

@@ -125,9 +125,9 @@ static st_status keep_large_parts(const st_footprint_checker *ck, const st_geom 
     return ST_OK;
 }
 
-int st_fp_out_of_memory(const char *geos_err)
+int st_fp_out_of_memory(const st_geos *gx)
 {
-    return strcmp(geos_err, "out of memory") == 0;   /* core/geomx.c's words */
+    return gx->last_status == ST_ERR_NOMEM;
 }
 
 /* *twin = GEOS twin of g if it is valid, else NULL with info->failure set. */
@@ -137,7 +137,7 @@ static st_status valid_twin(st_geos *gx, const st_geom *g, GEOSGeometry **twin,
     char err[256] = "";
     *twin = st_geom_to_geos(gx, g, err, sizeof err);
     if (!*twin) {
-        if (st_fp_out_of_memory(err))
+        if (st_fp_out_of_memory(gx))
             return ST_ERR_NOMEM;
         snprintf(info->failure, sizeof info->failure, "repaired geometry unusable: %s", err);
         return ST_OK;

@@ -374,8 +374,8 @@ static st_status register_layer(st_writer *w, const char *table, st_geom_type ty
         "last_change, srs_id) VALUES (?1, ?2, ?1, '', ?4, ?3)", &s, "adding to gpkg_contents");
     if (rc != ST_OK)
         return rc;
-    char when[40];
-    st_timestamp(when, sizeof when, 1);   /* SOURCE_DATE_EPOCH when set */
+    char when[32];
+    st_now_iso8601(when);   /* SOURCE_DATE_EPOCH when set: reproducible files */
     sqlite3_bind_text(s, 4, when, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(s, 1, table, -1, SQLITE_STATIC);
     sqlite3_bind_text(s, 2, geom ? "features" : "attributes", -1, SQLITE_STATIC);

@@ -105,8 +105,7 @@ static GEOSGeometry *to_geos(scan *s, uint32_t pos, st_status *rc)
     *rc = ST_OK;
     if (g)
         return g;
-    /* geomx.c says "out of memory" when its own allocation failed. */
-    if (strcmp(err, "out of memory") == 0)
+    if (s->gx->last_status == ST_ERR_NOMEM)
         *rc = ST_ERR_NOMEM;
     else
         *rc = skipped(s, item(s->nb, pos), ST_ERR_GEOS, "geometry not usable");

@@ -221,8 +221,8 @@ static st_status inside_point(st_geos *gx, const st_feature *f, double *x, doubl
     *x = *y = NAN;
     char err[128] = "";
     GEOSGeometry *g = st_geom_to_geos(gx, &f->geom, err, sizeof err);
-    if (!g)   /* geomx.c says "out of memory" when its own allocation failed */
-        return strcmp(err, "out of memory") == 0 ? ST_ERR_NOMEM : ST_OK;
+    if (!g)
+        return gx->last_status == ST_ERR_NOMEM ? ST_ERR_NOMEM : ST_OK;
     GEOSGeometry *p = GEOSPointOnSurface_r(gx->h, g);
     if (p && GEOSisEmpty_r(gx->h, p) == 0) {
         GEOSGeomGetX_r(gx->h, p, x);

@@ -93,7 +93,13 @@ static st_status read_layer(run_state *s, size_t l)
             break;
         f->layer = (uint32_t)l;
         f->bid = (uint64_t)s->nfeatures + 1;
-        rc = push_feature(s, f);
+        /* A feature without an id of its own (a GeoJSON feature with no
+        ** "id") is known by its 0-based position in the layer. */
+        if (!f->source_id &&
+            !(f->source_id = st_strdup_printf("%llu", (unsigned long long)f->index)))
+            rc = ST_ERR_NOMEM;
+        if (rc == ST_OK)
+            rc = push_feature(s, f);
         if (rc != ST_OK) {
             st_feature_free(f);
             break;
@@ -522,8 +528,8 @@ static st_feature **select_features(run_state *s, int kept, size_t *n)
 
 static st_status write_run_info(run_state *s, st_inventory *inv)
 {
-    char when[40];
-    st_timestamp(when, sizeof when, 0);   /* SOURCE_DATE_EPOCH when set */
+    char when[32];
+    st_now_iso8601(when);
     size_t nl = s->res->nlayers;
     size_t n = 3 + nl;
     const char **kv = st_calloc(2 * n, sizeof *kv);

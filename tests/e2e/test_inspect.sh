@@ -96,10 +96,6 @@ expect_rc 2 "$STOCKTAKE" inspect --json -q "$T" "$TMP/broken.geojson"
 expect_stderr "broken\.geojson"
 [ -s "$TMP/stdout" ] && fail "JSON printed although a layer failed"
 
-printf 'this is not a GeoPackage\n' >"$TMP/fake.gpkg"
-expect_rc 2 "$STOCKTAKE" inspect "$TMP/fake.gpkg"
-expect_stderr "fake\.gpkg"
-
 expect_rc 2 "$STOCKTAKE" inspect --frobnicate "$T"
 expect_rc 2 "$STOCKTAKE" inspect
 expect_rc 0 "$STOCKTAKE" inspect --help
@@ -167,6 +163,12 @@ ogr2ogr -f GPKG "$TMP/two.gpkg" "$T" -nln homes 2>/dev/null &&
     ogr2ogr -f GPKG -update "$TMP/two.gpkg" "$TMP/town.shp" -nln utm 2>/dev/null ||
     fail "ogr2ogr could not make the GeoPackage"
 has_reader "$TMP/two.gpkg:homes" || skip "GeoPackage reader not built yet (other checks passed)"
+printf 'this is not a GeoPackage\n' >"$TMP/fake.gpkg"
+expect_rc 2 "$STOCKTAKE" inspect "$TMP/fake.gpkg"
+expect_stderr "fake\.gpkg"
+grep -q "unknown layer format" "$TMP/stderr" && fail "fake.gpkg not read as a GeoPackage"
+expect_rc 2 "$STOCKTAKE" inspect "$TMP/two.gpkg:nosuchlayer"
+expect_stderr "two\.gpkg.*nosuchlayer"
 expect_rc 0 "$STOCKTAKE" inspect -q "$TMP/two.gpkg:utm"
 grep -qE '^  features +8$' "$TMP/stdout" || fail "gpkg:utm feature count"
 grep -qE '^  layer +utm$' "$TMP/stdout" || fail "gpkg layer name"

@@ -4,7 +4,8 @@
 # attribute (accented and Cyrillic UTF-8 text, quotes, integers), every
 # hole, and every area to 1e-9 relative. Each step's output is read by
 # GDAL's ogr and measured by shapely (/usr/bin/python3), the named
-# references, and compared with the starting shapefile. The fixture is
+# references, and compared with the starting shapefile; the GeoPackage
+# also passes GDAL's validate_gpkg.py. The fixture is
 # hand-written (tests/data/cli/roundtrip.geojson, an invented town) and
 # turned into a UTF-8 shapefile by ogr2ogr.
 . "$ST_TESTS_ROOT/e2e/lib.sh"
@@ -25,6 +26,16 @@ for next in "$TMP/step1.gpkg" "$TMP/step2.geojson" "$TMP/step3.shp"; do
     prev=$next
 done
 [ "$(cat "$TMP"/start.* | sha256sum)" = "$before" ] || fail "the input shapefile was modified"
+
+# The GeoPackage step declares one type for Polygon and MultiPolygon
+# features (MULTIPOLYGON); GDAL's validate_gpkg.py must accept the file.
+VALIDATE=/usr/lib/python3/dist-packages/osgeo_utils/samples/validate_gpkg.py
+if [ -f "$VALIDATE" ]; then
+    $PY "$VALIDATE" "$TMP/step1.gpkg" >"$TMP/validate" 2>&1 ||
+        { cat "$TMP/validate" >&2; fail "validate_gpkg.py rejects the converted GeoPackage"; }
+fi
+ogrinfo -ro -so -al "$TMP/step1.gpkg" | grep -q '^Geometry: Multi Polygon$' ||
+    fail "step1.gpkg does not declare MultiPolygon"
 
 $PY - "$TMP/start.shp" "$TMP/step1.gpkg" "$TMP/step2.geojson" "$TMP/step3.shp" <<'EOF' ||
 from osgeo import ogr

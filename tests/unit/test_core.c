@@ -204,6 +204,7 @@ static void test_geos_rejects_unclosed_ring(void **state)
     char err[256] = "";
     assert_null(st_geom_to_geos(gx, &g, err, sizeof err));
     assert_non_null(strstr(err, "closed"));
+    assert_int_equal(gx->last_status, ST_ERR_GEOS);   /* the ring, not memory */
     st_geom_clear(&g);
     st_geos_free(gx);
 }
@@ -267,6 +268,27 @@ static void test_geom_builder_nomem_loop(void **state)
     }
 }
 
+/* A failed allocation inside the bridge is told apart from a bad ring. */
+static void test_geos_bridge_reports_nomem(void **state)
+{
+    (void)state;
+    st_geos *gx = st_geos_new();
+    st_geom g;
+    build_square_with_hole(&g);
+    char err[256] = "";
+    st_alloc_fail_after(1);
+    GEOSGeometry *geom = st_geom_to_geos(gx, &g, err, sizeof err);
+    st_alloc_fail_after(0);
+    assert_null(geom);
+    assert_int_equal(gx->last_status, ST_ERR_NOMEM);
+    geom = st_geom_to_geos(gx, &g, err, sizeof err);
+    assert_non_null(geom);
+    assert_int_equal(gx->last_status, ST_OK);
+    GEOSGeom_destroy_r(gx->h, geom);
+    st_geom_clear(&g);
+    st_geos_free(gx);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -279,6 +301,7 @@ int main(void)
         cmocka_unit_test(test_geom_builder_and_orient),
         cmocka_unit_test(test_geos_roundtrip_wkb),
         cmocka_unit_test(test_geos_rejects_unclosed_ring),
+        cmocka_unit_test(test_geos_bridge_reports_nomem),
         cmocka_unit_test(test_feature_values),
         cmocka_unit_test(test_fields_dedupe),
         cmocka_unit_test(test_geom_builder_nomem_loop),
