@@ -376,6 +376,11 @@ static st_status register_layer(st_writer *w, const char *table, st_geom_type ty
         return rc;
     char when[32];
     st_now_iso8601(when);   /* SOURCE_DATE_EPOCH when set: reproducible files */
+    /* GeoPackage 1.2 Req 15 wants %Y-%m-%dT%H:%M:%fZ: add the milliseconds
+    ** (validate_gpkg.py refuses the value without them). */
+    size_t len = strlen(when);
+    if (len > 0 && when[len - 1] == 'Z' && len + 5 <= sizeof when)
+        memcpy(when + len - 1, ".000Z", 6);
     sqlite3_bind_text(s, 4, when, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(s, 1, table, -1, SQLITE_STATIC);
     sqlite3_bind_text(s, 2, geom ? "features" : "attributes", -1, SQLITE_STATIC);
