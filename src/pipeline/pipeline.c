@@ -77,6 +77,20 @@ static char *unique_layer_name(run_state *s, size_t upto, const char *base)
     }
 }
 
+/* Give back what the geometry builder over-allocated (it doubles its
+** arrays): every feature is held until the write, so the slack of a
+** million coordinate arrays adds up (docs/performance.md, memory). */
+static void trim_geometry(st_geom *g)
+{
+    if (g->xy && g->cap_coords > g->ncoords && g->ncoords > 0) {
+        double *xy = st_realloc(g->xy, 2 * (size_t)g->ncoords * sizeof *xy);
+        if (xy) {
+            g->xy = xy;
+            g->cap_coords = g->ncoords;
+        }
+    }
+}
+
 static st_status read_layer(run_state *s, size_t l)
 {
     st_read_options ro = ST_READ_OPTIONS_DEFAULT;
@@ -93,6 +107,7 @@ static st_status read_layer(run_state *s, size_t l)
             break;
         f->layer = (uint32_t)l;
         f->bid = (uint64_t)s->nfeatures + 1;
+        trim_geometry(&f->geom);
         /* A feature without an id of its own (a GeoJSON feature with no
         ** "id") is known by its 0-based position in the layer. */
         if (!f->source_id &&
