@@ -1,9 +1,10 @@
 /*
 ** stocktake/inventory.h -- writing the curated inventory: the layers
-** `buildings`, `set_aside`, `findings` and `run_info` (and, once districts
-** are placed, `districts`) into one GeoPackage, or into sibling files for
-** single-layer formats (OUT.geojson, OUT.set_aside.geojson,
-** OUT.findings.geojson, OUT.run_info.csv ...).
+** `buildings`, `set_aside`, `findings`, `run_info` and `unmapped` (and,
+** once districts are placed, `districts`) into one GeoPackage, or into
+** sibling files for single-layer formats (OUT.geojson,
+** OUT.set_aside.geojson, OUT.findings.geojson, OUT.run_info.csv,
+** OUT.unmapped.csv ...).
 **
 ** source_id is the layer's own id (GeoJSON id, GeoPackage fid, Shapefile
 ** record number), or the feature's 0-based position in its layer when the
@@ -17,6 +18,8 @@
 **              source attributes; geometry as read
 **   findings   bid code severity message; point geometry where known
 **   run_info   key value
+**   unmapped   field value count: source values no map line matched (and
+**              values a derive rule could not read), most frequent first
 ** Nothing appears at the output path(s) before st_inventory_commit().
 */
 #ifndef STOCKTAKE_INVENTORY_H
@@ -56,6 +59,10 @@ st_status st_inventory_write_findings(st_inventory *inv,
                                       const st_findings *findings) ST_MUST_CHECK;
 /* Key/value pairs (2 * n strings, borrowed). */
 st_status st_inventory_write_run_info(st_inventory *inv, const char *const *kv,
+                                      size_t n) ST_MUST_CHECK;
+/* The unmapped source values: n rows of 3 strings (field, value, count as
+** decimal text), borrowed. Every run writes the table, empty without rules. */
+st_status st_inventory_write_unmapped(st_inventory *inv, const char *const *rows,
                                       size_t n) ST_MUST_CHECK;
 /* Rename every output into place. */
 st_status st_inventory_commit(st_inventory *inv) ST_MUST_CHECK;

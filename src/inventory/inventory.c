@@ -16,10 +16,10 @@
 #include "stocktake/inventory.h"
 #include "stocktake/io.h"
 
-enum { L_BUILDINGS, L_SET_ASIDE, L_FINDINGS, L_RUN_INFO, L_COUNT };
+enum { L_BUILDINGS, L_SET_ASIDE, L_FINDINGS, L_RUN_INFO, L_UNMAPPED, L_COUNT };
 
 static const char *const layer_names[L_COUNT] = {
-    "buildings", "set_aside", "findings", "run_info"};
+    "buildings", "set_aside", "findings", "run_info", "unmapped"};
 
 /* Our own leading columns; a source attribute with one of these names is
 ** written as src_<name>. */
@@ -162,12 +162,12 @@ static st_status open_writers(st_inventory *inv)
     if (inv->multi)
         return st_writer_open(inv->path, inv->diags, &inv->w[0]);
     for (int l = 0; l < L_COUNT; l++) {
-        /* run_info is a table: CSV beside a single-layer output. */
+        /* run_info and unmapped are tables: CSV beside a single-layer output. */
         char *p;
         if (l == L_BUILDINGS)
             p = st_strdup(inv->path);
-        else if (l == L_RUN_INFO) {
-            char *g = st_inventory_sibling_path(inv->path, "run_info");
+        else if (l == L_RUN_INFO || l == L_UNMAPPED) {
+            char *g = st_inventory_sibling_path(inv->path, layer_names[l]);
             const char *dot = g ? strrchr(g, '.') : NULL;
             p = g ? st_strdup_printf("%.*s.csv", (int)(dot - g), g) : NULL;
             st_free(g);
@@ -373,26 +373,42 @@ st_status st_inventory_write_findings(st_inventory *inv, const st_findings *fl)
     return rc;
 }
 
-st_status st_inventory_write_run_info(st_inventory *inv, const char *const *kv, size_t n)
+/* An attribute table of text columns 'cols' (ncols), n rows of ncols
+** strings each (borrowed). */
+static st_status write_table(st_inventory *inv, int layer, const char *const *cols,
+                             const st_field_type *types, size_t ncols,
+                             const char *const *rows, size_t n)
 {
     st_fields fields;
     st_fields_init(&fields);
-    st_status rc = st_fields_add(&fields, "key", ST_FIELD_TEXT, 0, 0, NULL);
+    st_status rc = ST_OK;
+    for (size_t c = 0; rc == ST_OK && c < ncols; c++)
+        rc = st_fields_add(&fields, cols[c], types[c], 0, 0, NULL);
+    st_writer *w = writer_for(inv, layer);
     if (rc == ST_OK)
-        rc = st_fields_add(&fields, "value", ST_FIELD_TEXT, 0, 0, NULL);
-    st_writer *w = writer_for(inv, L_RUN_INFO);
-    if (rc == ST_OK)
-        rc = st_writer_begin_layer(w, "run_info", &fields, ST_GEOM_NULL);
+        rc = st_writer_begin_layer(w, layer_names[layer], &fields, ST_GEOM_NULL);
     st_feature none;
     memset(&none, 0, sizeof none);
-    for (size_t k = 0; rc == ST_OK && k < n; k++) {
-        char *row[2] = {(char *)kv[2 * k], (char *)kv[2 * k + 1]};
-        rc = write_row(w, &none, row, 2, 0);
-    }
+    for (size_t k = 0; rc == ST_OK && k < n; k++)
+        rc = write_row(w, &none, (char **)(rows + ncols * k), (uint32_t)ncols, 0);
     if (rc == ST_OK)
         rc = st_writer_end_layer(w);
     st_fields_free(&fields);
     return rc;
+}
+
+st_status st_inventory_write_run_info(st_inventory *inv, const char *const *kv, size_t n)
+{
+    static const char *const cols[] = {"key", "value"};
+    static const st_field_type types[] = {ST_FIELD_TEXT, ST_FIELD_TEXT};
+    return write_table(inv, L_RUN_INFO, cols, types, 2, kv, n);
+}
+
+st_status st_inventory_write_unmapped(st_inventory *inv, const char *const *rows, size_t n)
+{
+    static const char *const cols[] = {"field", "value", "count"};
+    static const st_field_type types[] = {ST_FIELD_TEXT, ST_FIELD_TEXT, ST_FIELD_INTEGER};
+    return write_table(inv, L_UNMAPPED, cols, types, 3, rows, n);
 }
 
 st_status st_inventory_commit(st_inventory *inv)

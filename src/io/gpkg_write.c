@@ -374,14 +374,12 @@ static st_status register_layer(st_writer *w, const char *table, st_geom_type ty
         "last_change, srs_id) VALUES (?1, ?2, ?1, '', ?4, ?3)", &s, "adding to gpkg_contents");
     if (rc != ST_OK)
         return rc;
-    char when[32];
-    st_now_iso8601(when);   /* SOURCE_DATE_EPOCH when set: reproducible files */
-    /* GeoPackage 1.2 Req 15 wants %Y-%m-%dT%H:%M:%fZ: add the milliseconds
-    ** (validate_gpkg.py refuses the value without them). */
-    size_t len = strlen(when);
-    if (len > 0 && when[len - 1] == 'Z' && len + 5 <= sizeof when)
-        memcpy(when + len - 1, ".000Z", 6);
-    sqlite3_bind_text(s, 4, when, -1, SQLITE_TRANSIENT);
+    /* SOURCE_DATE_EPOCH when set (reproducible files); the spec's form
+    ** has milliseconds: 2026-12-02T04:10:00.000Z */
+    char when[32], stamp[40];
+    st_now_iso8601(when);
+    snprintf(stamp, sizeof stamp, "%.*s.000Z", (int)strlen(when) - 1, when);
+    sqlite3_bind_text(s, 4, stamp, -1, SQLITE_TRANSIENT);
     sqlite3_bind_text(s, 1, table, -1, SQLITE_STATIC);
     sqlite3_bind_text(s, 2, geom ? "features" : "attributes", -1, SQLITE_STATIC);
     if (geom)

@@ -91,8 +91,33 @@ static void trim_geometry(st_geom *g)
     }
 }
 
+/* GeoJSON types a field by its first value: a later "PB+2" in a field that
+** began with 2 makes it text, so that the inventory does not declare a
+** number column for it (GDAL reads such a value back as 0). 'first' is the
+** layer's first feature. */
+static void demote_numeric_fields(run_state *s, size_t l, size_t first)
+{
+    st_fields *fl = &s->fields[l];
+    for (size_t i = first; i < s->nfeatures; i++) {
+        const st_feature *f = s->features[i];
+        for (uint32_t k = 0; k < f->nvalues && k < fl->count; k++) {
+            st_field *fd = &fl->items[k];
+            const char *v = f->values[k];
+            if ((fd->type != ST_FIELD_INTEGER && fd->type != ST_FIELD_REAL) || !v || !*v)
+                continue;
+            char *end;
+            (void)strtod(v, &end);
+            if (*end) {
+                fd->type = ST_FIELD_TEXT;
+                fd->width = 0;
+            }
+        }
+    }
+}
+
 static st_status read_layer(run_state *s, size_t l)
 {
+    size_t first = s->nfeatures;
     st_read_options ro = ST_READ_OPTIONS_DEFAULT;
     ro.crs_override = s->opt->crs_override;
     st_reader *r = NULL;
@@ -135,6 +160,8 @@ static st_status read_layer(run_state *s, size_t l)
     }
     if (rc == ST_OK)
         rc = st_fields_copy(&s->fields[l], st_reader_fields(r));
+    if (rc == ST_OK)
+        demote_numeric_fields(s, l, first);
     st_reader_close(r);
     return rc;
 }
@@ -579,6 +606,30 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     return rc;
 }
 
+/* The unmapped values as rows of (field, value, count) for the inventory. */
+static st_status write_unmapped(run_state *s, st_inventory *inv)
+{
+    const st_run_result *r = s->res;
+    const char **rows = st_calloc(3 * r->nunmapped + 1, sizeof *rows);
+    char **counts = st_calloc(r->nunmapped + 1, sizeof *counts);
+    st_status rc = rows && counts ? ST_OK : ST_ERR_NOMEM;
+    for (size_t i = 0; rc == ST_OK && i < r->nunmapped; i++) {
+        counts[i] = st_strdup_printf("%llu", (unsigned long long)r->unmapped[i].count);
+        rows[3 * i] = r->unmapped[i].field;
+        rows[3 * i + 1] = r->unmapped[i].value;
+        rows[3 * i + 2] = counts[i];
+        if (!counts[i])
+            rc = ST_ERR_NOMEM;
+    }
+    if (rc == ST_OK)
+        rc = st_inventory_write_unmapped(inv, rows, r->nunmapped);
+    for (size_t i = 0; counts && i < r->nunmapped; i++)
+        st_free(counts[i]);
+    st_free(counts);
+    st_free(rows);
+    return rc;
+}
+
 static st_status write_inventory(run_state *s)
 {
     size_t nl = s->res->nlayers;
@@ -615,6 +666,8 @@ static st_status write_inventory(run_state *s)
         rc = st_inventory_write_findings(inv, &s->findings);
     if (rc == ST_OK)
         rc = write_run_info(s, inv);
+    if (rc == ST_OK)
+        rc = write_unmapped(s, inv);
     if (rc == ST_OK)
         rc = st_inventory_commit(inv);
     st_inventory_close(inv);

@@ -40,7 +40,11 @@ def main():
         ds = ogr.Open(path)
         n = ds.GetLayer(0).GetFeatureCount()
         total_in += n
-        name = os.path.splitext(os.path.basename(path))[0]
+        # our layer name: the table of a GeoPackage, else the file stem
+        if path.lower().endswith(".gpkg") or ".gpkg:" in path.lower():
+            name = ds.GetLayer(0).GetName()
+        else:
+            name = os.path.splitext(os.path.basename(path))[0]
         k = 2
         base = name
         while name in names:
@@ -48,7 +52,9 @@ def main():
             k += 1
         names.append(name)
         got = sum(v for (lay, _), v in seen.items() if lay == name)
-        dup = [key for key, v in seen.items() if key[0] == name and v != 1]
+        # features without an id (GeoJSON without "id") are counted only
+        dup = [key for key, v in seen.items()
+               if key[0] == name and key[1] is not None and v != 1]
         print("%s: read %d (GDAL) = out %d%s" % (name, n, got, "" if not dup else " repeated ids %r" % dup[:3]))
         if got != n or dup:
             bad += 1
