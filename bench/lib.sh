@@ -17,20 +17,31 @@ machine() {
         sed 's/^ //'), load $(cut -d' ' -f1-3 /proc/loadavg)"
 }
 
-# town N: print the data folder of size N, making what is missing.
+# stamp N: what the data of size N depends on, as bench/run.sh writes it;
+# data with another stamp is made again.
+stamp() {
+    printf 'gen %s\nn %s seed %s districts %s omit %s\n' \
+        "$(sha256sum bench/gen_town.py | cut -d' ' -f1)" "$1" "$SEED" 5000 point,swapped
+}
+
+# town N: print the data folder of size N, making what is missing (the
+# same files, options and stamp as bench/run.sh's make_town).
 town() {
     d=bench/data/town-n$1-s$SEED
-    if [ ! -f "$d/buildings_osm.geojsonl" ]; then
+    if [ ! -f "$d/stamp" ] || [ "$(stamp "$1")" != "$(cat "$d/stamp")" ] ||
+            [ ! -f "$d/buildings_osm.geojsonl" ]; then
         [ -f bench/gen_town.py ] || { problem "no $d and no bench/gen_town.py"; return 1; }
         note "generating $1 footprints into $d/ (once)"
+        rm -rf "$d"
         mkdir -p "$d" &&
         "$PY" bench/gen_town.py --seed "$SEED" --n "$1" --districts 5000 \
             --format geojsonl --no-cadastre --no-truth --omit point,swapped \
             --out "$d" >&2 || { problem "generator failed"; return 1; }
+        stamp "$1" >"$d/stamp"
     fi
     if [ ! -f "$d/buildings_osm.gpkg" ]; then
         note "converting $d/buildings_osm.geojsonl to GeoPackage (once)"
-        "$ST" convert "$d/buildings_osm.geojsonl" "$d/buildings_osm.gpkg" >&2 ||
+        "$ST" convert -q "$d/buildings_osm.geojsonl" "$d/buildings_osm.gpkg" >&2 ||
             { problem "convert to GeoPackage failed"; return 1; }
     fi
     echo "$d"
