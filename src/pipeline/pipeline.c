@@ -139,6 +139,8 @@ static st_status read_layer(run_state *s, size_t l)
             !(f->source_id = st_strdup_printf("%llu", (unsigned long long)f->index)))
             rc = ST_ERR_NOMEM;
         if (rc == ST_OK)
+            rc = st_feature_pack_values(f);   /* one block: memory */
+        if (rc == ST_OK)
             rc = push_feature(s, f);
         if (rc != ST_OK) {
             st_feature_free(f);
