@@ -1,9 +1,14 @@
 # stocktake -- plain Makefile. Libraries through pkg-config; libcsv ships no
 # .pc file on Debian, so it is linked by name.
 #
-# Targets: all check demo bench bench-compare install clean deps (see DEVELOPERS.md)
+# Targets: all check demo bench bench-compare install clean deps (see DEVELOPERS.md),
+#          fuzz valgrind (see docs/reliability.md)
 #   make BUILD=dir      build into another folder (parallel work trees)
-#   make SANITIZE=1     AddressSanitizer + UndefinedBehaviorSanitizer
+#   make SANITIZE=1     AddressSanitizer + UndefinedBehaviorSanitizer, into
+#                       $(BUILD)-san; `make check SANITIZE=1` runs every test
+#                       (unit, fuzz replay, e2e, ref) with those binaries
+#   make fuzz           libFuzzer targets built with clang into build-fuzz/,
+#                       each run FUZZ_SECONDS (default 30) seconds
 
 CC       ?= cc
 BUILD    ?= build
@@ -23,7 +28,12 @@ ALL_LDFLAGS = $(LDFLAGS)
 ifeq ($(SANITIZE),1)
   ALL_CFLAGS  += -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=undefined
   ALL_LDFLAGS += -fsanitize=address,undefined
-  BUILD := $(BUILD)-san
+  # 'override': a BUILD given on the command line gets the suffix too.
+  override BUILD := $(BUILD)-san
+  # Leaks are errors; suppressions only for code outside the project.
+  export ASAN_OPTIONS := detect_leaks=1:abort_on_error=0:strict_string_checks=1
+  export LSAN_OPTIONS := suppressions=$(abspath tests/lsan.supp):print_suppressions=0
+  export UBSAN_OPTIONS := print_stacktrace=1:halt_on_error=1
 endif
 
 LIB_SRC  := $(sort $(filter-out src/cli/%,$(wildcard src/*/*.c)))
@@ -36,7 +46,17 @@ LIB      := $(BUILD)/libstocktake.a
 BIN      := $(BUILD)/stocktake
 TESTS    := $(TEST_SRC:tests/unit/%.c=$(BUILD)/tests/%)
 
-.PHONY: all check unit e2e ref demo bench bench-compare deps install clean symbols
+# Fuzz targets: tests/fuzz/fuzz_<target>.c. Each is also linked with a
+# plain driver (replay_<target>) that replays its corpus and the crashers
+# of tests/data/crashers/<target>/ as part of `make check`.
+FUZZ_TARGETS := $(sort $(patsubst tests/fuzz/fuzz_%.c,%,$(wildcard tests/fuzz/fuzz_*.c)))
+REPLAYS  := $(FUZZ_TARGETS:%=$(BUILD)/fuzz/replay_%)
+FUZZ_SECONDS ?= 30
+FUZZ_CC  ?= clang
+FUZZ_BUILD ?= build-fuzz
+
+.PHONY: all check unit replay e2e ref demo bench bench-compare deps install clean symbols \
+        fuzz fuzz-bins valgrind
 
 all: $(BIN)
 
@@ -55,6 +75,21 @@ $(BUILD)/tests/%: tests/unit/%.c $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) -Isrc $(ALL_LDFLAGS) -o $@ $< $(LIB) $(PKG_LIBS) -lcmocka
 
+$(BUILD)/fuzz/replay_%: tests/fuzz/fuzz_%.c tests/fuzz/fuzz.h $(BUILD)/tests/fuzz/replay.o $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -Isrc $(ALL_LDFLAGS) -o $@ $< $(BUILD)/tests/fuzz/replay.o $(LIB) $(PKG_LIBS)
+
+# libFuzzer binaries; only built by `make fuzz`, in its own BUILD.
+$(BUILD)/fuzz/fuzz_%: tests/fuzz/fuzz_%.c tests/fuzz/fuzz.h $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -Isrc -fsanitize=fuzzer $(ALL_LDFLAGS) -o $@ $< $(LIB) $(PKG_LIBS)
+
+fuzz-bins: $(FUZZ_TARGETS:%=$(BUILD)/fuzz/fuzz_%)
+
+# Keep the driver's object between builds (make would delete it as an
+# intermediate file of a chain of pattern rules).
+.SECONDARY: $(BUILD)/tests/fuzz/replay.o
+
 deps:
 	@sh scripts/deps.sh
 
@@ -67,6 +102,9 @@ symbols: $(LIB)
 unit: $(TESTS)
 	@sh tests/run-unit.sh $(TESTS)
 
+replay: $(REPLAYS)
+	@sh tests/fuzz/replay.sh $(BUILD)/fuzz $(FUZZ_TARGETS)
+
 e2e: $(BIN)
 	@STOCKTAKE=$(abspath $(BIN)) sh tests/e2e/run.sh
 
@@ -74,8 +112,23 @@ ref: $(BIN)
 	@STOCKTAKE=$(abspath $(BIN)) sh tests/ref/run.sh
 
 check: deps
-	@$(MAKE) --no-print-directory all $(TESTS)
-	@$(MAKE) --no-print-directory symbols unit e2e ref
+	@$(MAKE) --no-print-directory all $(TESTS) $(REPLAYS)
+	@$(MAKE) --no-print-directory symbols unit replay e2e ref
+
+# The library and harnesses built with clang, libFuzzer, ASan and UBSan;
+# then each target runs FUZZ_SECONDS seconds (tests/fuzz/run.sh).
+fuzz: deps
+	@sh scripts/deps.sh fuzz
+	@$(MAKE) --no-print-directory BUILD=$(FUZZ_BUILD) SANITIZE=0 CC=$(FUZZ_CC) \
+	    CFLAGS="-O1 -g -fno-omit-frame-pointer -fsanitize=fuzzer-no-link,address,undefined -fno-sanitize-recover=undefined" \
+	    LDFLAGS="-fsanitize=address,undefined" fuzz-bins
+	@FUZZ_SECONDS=$(FUZZ_SECONDS) sh tests/fuzz/run.sh $(FUZZ_BUILD) $(FUZZ_TARGETS)
+
+# The demo (or, until it exists, a run on tests/data) under valgrind: any
+# memory error or leak fails.
+valgrind: deps
+	@$(MAKE) --no-print-directory all
+	@STOCKTAKE=$(abspath $(BIN)) sh tests/valgrind.sh
 
 demo: deps
 	@$(MAKE) --no-print-directory all

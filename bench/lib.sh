@@ -73,5 +73,5 @@ median_run() {
 
 # The per-stage lines of a `run --timings` (or peer.py) stderr.
 stage_lines() {
-    grep -E '^(stage|read|footprint|neighbours|place|rules|defaults|audit|write|total) ' "$1"
+    grep -E '^(stage|rules|districts|read|footprints?|neighbours|place|map-derive-check|defaults|findings|audit|gate|summary|write|total) ' "$1"
 }

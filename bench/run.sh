@@ -22,6 +22,9 @@
 # Sections (add new ones as section_NAME functions and list them in
 # BENCH_SECTIONS' default when they are ready):
 #   read    inspect on GeoJSONL, GeoPackage, Shapefile: read throughput
+#   place   run with districts, reference counts and defaults: the stages
+#           districts (layer, reference, defaults tables), place, defaults
+#           and audit from the run's own --timings, with 1 and 2 threads
 #   run     the whole job at 100k and 1M, per stage, and the floor
 #           (bench/stages.sh); the peer comparison is 'make bench-compare'
 set -u
@@ -30,7 +33,7 @@ ST=${STOCKTAKE:-build/stocktake}
 N=${BENCH_N:-1000000}
 SEED=${BENCH_SEED:-1}
 RUNS=${BENCH_RUNS:-3}
-SECTIONS=${BENCH_SECTIONS:-read run}
+SECTIONS=${BENCH_SECTIONS:-read place run}
 DISTRICTS=5000
 # The GeoPackage and Shapefile copies are made with 'stocktake convert',
 # which refuses (by design) swapped latitude/longitude, and a Point among
@@ -146,6 +149,93 @@ section_read() {
     done
 }
 
+# ---- section: place ----------------------------------------------------------
+# 'stocktake run' on the GeoJSONL town with its 5,000 districts (key
+# district_id, region region_id), the reference counts, and a bench rule
+# pack: starter.rules for the tags, inline defaults by district pattern,
+# region and everywhere, a learned storeys default, and a defaults table of
+# 15,000 rows (one material distribution per district, generated here with
+# a fixed seed); defaults drawn with --seed 1. The figures are the run's own
+# --timings of the stages this section is about (median of BENCH_RUNS per
+# stage), the whole run's wall time and peak RSS.
+
+place_rules() {
+    dir=$DATA/place
+    [ -f "$dir/bench.rules" ] && [ -f "$dir/defaults.csv" ] && return 0
+    mkdir -p "$dir" || return 1
+    "$PY" - "$DATA/reference_counts.csv" "$dir/defaults.csv" <<'PYEOF' || return 1
+import csv, random, sys
+keys = [r[0] for r in list(csv.reader(open(sys.argv[1], newline="")))[1:] if r]
+rng = random.Random(1)                 # fixed: the table is the same every time
+with open(sys.argv[2], "w", newline="") as out:
+    out.write("scope,key,field,value,share,occupancy,note\n")
+    for k in keys:
+        a = rng.randint(20, 60)
+        b = rng.randint(10, 100 - a - 5)
+        for v, sh in (("URM", a), ("RM", b), ("RC", 100 - a - b)):
+            out.write(f"district,{k},material,{v},{sh},RES,bench (invented)\n")
+PYEOF
+    {
+        echo "include \"$(pwd)/rules/starter.rules\""
+        echo "defaults"
+        echo "  in district QM00* when occupancy = RES set material URM 60%, RM 30%, TMB 10%"
+        echo "  in region R0* set storeys 1 50%, 2 30%, 3 20%"
+        echo "  everywhere set occupancy RES"
+        echo "  everywhere set material RM"
+        echo "  table \"defaults.csv\""
+        echo "  learn storeys per district from 30 buildings"
+        echo "end"
+    } >"$dir/bench.rules"
+}
+
+section_place() {
+    echo
+    echo "== place and defaults: stocktake run, $N features, $DISTRICTS districts," \
+        "median of $RUNS runs"
+    place_rules || { problem "cannot write the bench rules"; return; }
+    printf '%-8s %12s %9s %13s %11s %9s %9s %12s\n' threads "districts s" "place s" \
+        "placed/s" "defaults s" "audit s" "run s" "peak RSS MB"
+    for j in 1 2; do
+        : >"$DATA/place_times"
+        i=0
+        while [ "$i" -lt "$RUNS" ]; do
+            "$TIME" -f '%e %M' -o "$DATA/time1" "$ST" run -q --timings -j "$j" \
+                -r "$DATA/place/bench.rules" --districts "$DATA/districts.geojson" \
+                --district-key district_id --region-key region_id \
+                --reference "$DATA/reference_counts.csv" --fill draw --seed 1 \
+                -o "$DATA/place/out.gpkg" "$DATA/buildings_osm.geojsonl" 2>"$DATA/place.err"
+            rc=$?   # 1: the gate failed, the run is complete
+            if [ "$rc" -gt 1 ]; then
+                problem "place run (-j $j) failed: $(head -n 1 "$DATA/place.err")"
+                break
+            fi
+            # one line per run: districts place defaults audit wall rss
+            awk -v t="$(tail -n 1 "$DATA/time1")" '
+                /^districts / { d = $2 } /^place / { p = $2 }
+                /^defaults / { f = $2 } /^audit / { a = $2 }
+                END { print d, p, f, a, t }' "$DATA/place.err" >>"$DATA/place_times"
+            i=$((i + 1))
+        done
+        [ "$i" -eq "$RUNS" ] || continue
+        awk -v n="$N" -v j="$j" -v runs="$RUNS" '
+            { for (c = 1; c <= 6; c++) v[c, NR] = $c }
+            function median(c,   i, k, t, tmp) {
+                for (i = 1; i <= runs; i++) tmp[i] = v[c, i]
+                for (i = 2; i <= runs; i++)
+                    for (k = i; k > 1 && tmp[k - 1] > tmp[k]; k--) {
+                        t = tmp[k]; tmp[k] = tmp[k - 1]; tmp[k - 1] = t
+                    }
+                return tmp[int((runs + 1) / 2)]
+            }
+            END {
+                p = median(2)
+                printf "%-8s %12.3f %9.3f %13.0f %11.3f %9.3f %9.1f %12.1f\n", j, median(1), p,
+                       (p > 0 ? n / p : 0), median(3), median(4), median(5), median(6) / 1024
+            }' "$DATA/place_times"
+    done
+    rm -f "$DATA/place/out.gpkg"
+}
+
 # ---- section: run ------------------------------------------------------------
 # The whole job (stocktake run with bench/bench.rules, the districts and the
 # reference counts) at 100,000 and 1,000,000 footprints, GeoPackage and
@@ -173,6 +263,7 @@ echo "data: $DATA/ (invented town of Quellamar: $N footprints, $DISTRICTS distri
 for s in $SECTIONS; do
     case $s in
         read) section_read ;;
+        place) section_place ;;
         run) section_run ;;
         *) problem "unknown section '$s'" ;;
     esac

@@ -17,7 +17,7 @@
 #          (and the districts and reference counts when this build has
 #          them), and the end-to-end line from GNU time: wall, cpu, peak
 #          RSS and bytes per footprint; last, the ratio of the geometry
-#          stages (footprint + neighbours), without and with the read,
+#          stages (footprints + neighbours), without and with the read,
 #          to the floor (which reads, validates and indexes).
 # Errors:  a step that fails is reported; exit 1 at the end.
 set -u
@@ -79,7 +79,7 @@ stages_one() {   # stages_one DATA FORMAT N
             w, u + s, n / w, m / 1024, m * 1024 / n }'
     if [ "$fmt" = gpkg ] && [ -s "$OUT/floor.total" ]; then
         awk -v f="$(cat "$OUT/floor.total")" '
-            $1 == "footprint" || $1 == "neighbours" { g += $2 }
+            $1 == "footprints" || $1 == "footprint" || $1 == "neighbours" { g += $2 }
             $1 == "read" { rd = $2 }
             END { if (f > 0) {
                 printf "floor %.2f s; geometry stages (footprint + neighbours) %.2f s = %.1f x the floor;", f, g, g / f

@@ -149,6 +149,7 @@ has --districts && set -- "$@" --districts "$S/districts.geojson"
 has --district-key && set -- "$@" --district-key district_id
 has --region-key && set -- "$@" --region-key region_id
 has --reference && set -- "$@" --reference "$S/reference_counts.csv"
+has --fill && set -- "$@" --fill draw
 has --seed && set -- "$@" --seed 73
 has --report && set -- "$@" --report "$OUT/report"
 echo "  stocktake run $* $S/buildings_osm.geojson $S/buildings_cadastre.geojson"

@@ -7,18 +7,25 @@ set -eu
 BUILD_PKGS="gcc make pkg-config libgeos-dev libproj-dev libshp-dev
 libsqlite3-dev libpcre2-dev libyajl-dev libcsv-dev libcmocka-dev"
 # Tests: outside references (GDAL, PROJ tools, shapely/pyproj/geopandas
-# on Debian's python), and the sqlite3 shell.
+# on Debian's python), the sqlite3 shell, JSON Schema validation of
+# report.json, and a real browser (headless Chromium) for report.html.
 TEST_PKGS="gdal-bin python3-gdal proj-bin python3-pyproj python3-shapely
-python3-geopandas shapelib sqlite3 valgrind time"
+python3-geopandas shapelib sqlite3 valgrind time python3-jsonschema chromium"
+# Fuzzing (`make fuzz` only, asked for with `deps.sh fuzz`): clang and its
+# runtime libraries (libFuzzer, sanitizers) for the default clang version.
+FUZZ_PKGS="clang libclang-rt-dev"
+
+want="$BUILD_PKGS $TEST_PKGS"
+[ "${1:-}" = fuzz ] && want=$FUZZ_PKGS
 
 missing=""
-for p in $BUILD_PKGS $TEST_PKGS; do
+for p in $want; do
     dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "ok installed" ||
         missing="$missing $p"
 done
 
 if [ -z "$missing" ]; then
-    echo "deps: all packages present"
+    echo "deps: all packages present${1:+ ($1)}"
     exit 0
 fi
 

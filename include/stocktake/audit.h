@@ -7,6 +7,11 @@
 ** Ownership: an st_audit owns every string and array in it, except the
 ** district geometries, which are borrowed from the district layer (place.h)
 ** and must outlive the audit. Free with st_audit_free().
+**
+** Order of 'districts': the district layer's districts in layer order
+** (nlayer_districts of them), then the districts the reference names but
+** the layer lacks (ref ST_REF_ABSENT, no geometry), then "none" last (the
+** buildings outside every district; always present).
 */
 #ifndef STOCKTAKE_AUDIT_H
 #define STOCKTAKE_AUDIT_H
@@ -15,6 +20,9 @@
 #include "stocktake/core.h"
 #include "stocktake/feature.h"
 #include "stocktake/finding.h"
+#include "stocktake/defaults.h"
+#include "stocktake/place.h"
+#include "stocktake/rules.h"
 
 #define ST_NPROV 5   /* entries of st_provenance */
 
@@ -25,7 +33,7 @@ typedef struct st_audit_field {
 } st_audit_field;
 
 typedef enum {
-    ST_REF_NONE = 0,       /* no reference given for this district */
+    ST_REF_NONE = 0,       /* no reference count for this district */
     ST_REF_OK,             /* ratio within the thresholds */
     ST_REF_UNDER,          /* ratio below the under-mapped threshold */
     ST_REF_OVER,           /* ratio above the over-mapped threshold */
@@ -33,6 +41,12 @@ typedef enum {
 } st_ref_state;
 
 const char *st_ref_state_name(st_ref_state s);   /* "none", "ok", "under", ... */
+
+typedef struct st_audit_code {
+    const char *code;      /* static */
+    st_severity severity;
+    uint64_t count;
+} st_audit_code;
 
 typedef struct st_audit_district {
     char *key;             /* district key; "none" for the unassigned bucket */
@@ -45,9 +59,14 @@ typedef struct st_audit_district {
     uint64_t floor_known;  /* buildings contributing to floor_m2 */
     st_audit_field *fields;/* nfields (the schema's), owned */
     uint64_t findings[3];  /* by severity */
+    st_audit_code *codes;  /* findings by code, most frequent first, owned */
+    size_t ncodes;
     int64_t expected;      /* reference count, -1 without one */
-    double ratio;          /* buildings / expected, NAN without one */
+    double ratio;          /* buildings / expected, NAN without one (or
+                              when 0 are expected) */
     st_ref_state ref;
+    char *geom_repair;     /* why the district polygon was repaired
+                              (GEOSMakeValid), or NULL */
 } st_audit_district;
 
 typedef struct st_audit_count {
@@ -56,24 +75,23 @@ typedef struct st_audit_count {
     uint64_t count;
 } st_audit_count;
 
-typedef struct st_audit_code {
-    const char *code;      /* static */
-    st_severity severity;
-    uint64_t count;
-} st_audit_code;
-
 typedef struct st_audit_learned {
-    char *district;        /* where the default was learned */
+    char *district;        /* where the default was learned (a region key
+                              when per_region) */
     char *field;
-    uint64_t from_buildings;  /* buildings with a source value it came from */
+    uint64_t from_buildings;  /* buildings with an observed (source or
+                                 derived) value it came from */
     char *distribution;    /* "URM 60%, RM 30%, TMB 10%" */
+    int per_region;        /* 1: learned for a region */
+    char *rule;            /* the learn line, "file:line" */
 } st_audit_learned;
 
 typedef struct st_audit_gate {
     char *statement;       /* the gate as written */
     char *rule;            /* "file:line" or "--fail-on" */
     double value, limit;   /* measured value and the threshold */
-    int passed;
+    int passed;            /* 1: the condition does not hold */
+    int fails;             /* 1: a `fail` line or --fail-on; 0: `warn` */
     char *detail;          /* e.g. "share(error) = 0.034 > 0.02" */
 } st_audit_gate;
 
@@ -81,8 +99,10 @@ typedef struct st_audit {
     char **fields;         /* schema field names, nfields */
     uint32_t nfields;
     int32_t storeys_field; /* index of the storeys field, -1 if none */
-    st_audit_district *districts; /* one per district, then "none" last */
+    st_audit_district *districts; /* see the order above; "none" last */
     size_t ndistricts;
+    size_t nlayer_districts;      /* districts[0..n) come from the layer */
+    int has_reference;            /* --reference was given */
     st_audit_district total;      /* the whole run (key "all") */
     st_audit_code *codes;  /* findings by code, most frequent first */
     size_t ncodes;
@@ -99,5 +119,55 @@ typedef struct st_audit {
 } st_audit;
 
 void st_audit_free(st_audit *a);
+
+/* ---- reference counts ------------------------------------------------------ */
+
+/*
+** Expected building counts per district key, from a CSV file: a header row
+** (whatever it says), then the key in the first column and the count (a
+** whole number >= 0) in the second; further columns are allowed and not
+** read. Limits: ST_AUDIT_MAX_REFERENCE_BYTES, ST_PLACE_MAX_DISTRICTS rows.
+** A bad file is ST_ERR_FORMAT (or IO, LIMIT) with a diagnostic
+** "file:line: ...". Returns owned; free with st_reference_free.
+*/
+#define ST_AUDIT_MAX_REFERENCE_BYTES (64u << 20)
+typedef struct st_reference st_reference;
+st_status st_reference_load(const char *path, st_diags *diags,
+                            st_reference **out) ST_MUST_CHECK;
+void st_reference_free(st_reference *r);
+size_t st_reference_count(const st_reference *r);
+/* Row i: key (borrowed) and count; rows in file order. */
+const char *st_reference_key(const st_reference *r, size_t i, uint64_t *count);
+
+/* ---- computing the audit ----------------------------------------------------- */
+
+/* Thresholds of the completeness ratio when no gate line sets them
+** (common practice, no source): below 0.5 under-mapped, above 1.5
+** over-mapped (duplicates, or a wrong boundary). */
+#define ST_AUDIT_UNDER_RATIO 0.5
+#define ST_AUDIT_OVER_RATIO 1.5
+
+typedef struct st_audit_input {
+    st_feature *const *features;  /* every feature of the run, kept and set
+                                     aside, f->district set (borrowed) */
+    size_t nfeatures;
+    const st_findings *findings;  /* the run's findings (borrowed) */
+    const st_districts *districts;/* or NULL: everything is "none" */
+    const st_rules *rules;        /* or NULL: no schema, no gate lines */
+    const st_defaults *defaults;  /* or NULL: nothing learned */
+    const st_unmapped *unmapped;  /* or NULL */
+    const st_reference *reference;/* or NULL */
+    int fail_on;                  /* --fail-on: a severity, or -1 */
+} st_audit_input;
+
+/*
+** Aggregate everything the audit reports from 'in' (borrowed; the
+** districts must outlive the result) and evaluate the gate: the rules'
+** gate lines, then --fail-on. Under/over-mapped thresholds come from the
+** first `district-completeness <`/`<=` and `>`/`>=` gate lines, else the
+** defaults above. Returns owned (free with st_audit_free); ST_ERR_NOMEM.
+*/
+st_status st_audit_compute(const st_audit_input *in, st_diags *diags,
+                           st_audit **out) ST_MUST_CHECK;
 
 #endif

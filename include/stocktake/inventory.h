@@ -14,10 +14,16 @@
 **   buildings  bid layer source_id status area_m2 perimeter_m flags district
 **              [<field> <field>_from <field>_rule]... then every source
 **              attribute under its own name (src_<name> where it collides)
-**   set_aside  bid layer source_id status reason duplicate_of, then the
-**              source attributes; geometry as read
+**   set_aside  bid layer source_id status reason duplicate_of district,
+**              then the source attributes; geometry as read
 **   findings   bid code severity message; point geometry where known
 **   run_info   key value
+**   districts  district region buildings repaired duplicate rejected
+**              footprint_m2 floor_m2 floor_known expected ratio reference
+**              findings_error findings_warning findings_note polygon_repair
+**              [<field>_source _derived _default _drawn _unknown]... (shares
+**              of the district's buildings, 0..1); the district polygon;
+**              one row per district of the audit, "none" last (no polygon)
 **   unmapped   field value count: source values no map line matched (and
 **              values a derive rule could not read), most frequent first
 ** Nothing appears at the output path(s) before st_inventory_commit().
@@ -25,6 +31,7 @@
 #ifndef STOCKTAKE_INVENTORY_H
 #define STOCKTAKE_INVENTORY_H
 
+#include "stocktake/audit.h"
 #include "stocktake/core.h"
 #include "stocktake/feature.h"
 #include "stocktake/finding.h"
@@ -51,10 +58,12 @@ st_status st_inventory_open(const char *path, const st_inventory_layer *layers,
 st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,
                                        size_t n, const char *const *district_names)
     ST_MUST_CHECK;
-/* Set-aside features with their source geometry: 'source' (may be NULL)
-** gives, per feature, the geometry as read when f->geom was replaced. */
+/* Set-aside features with the geometry as read (f->source_geom when a
+** stage replaced f->geom); 'district_names' as for buildings: the district
+** the placement found for the feature's footprint, "none" without one. */
 st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs,
-                                       size_t n) ST_MUST_CHECK;
+                                       size_t n, const char *const *district_names)
+    ST_MUST_CHECK;
 st_status st_inventory_write_findings(st_inventory *inv,
                                       const st_findings *findings) ST_MUST_CHECK;
 /* Key/value pairs (2 * n strings, borrowed). */
@@ -64,6 +73,10 @@ st_status st_inventory_write_run_info(st_inventory *inv, const char *const *kv,
 ** decimal text), borrowed. Every run writes the table, empty without rules. */
 st_status st_inventory_write_unmapped(st_inventory *inv, const char *const *rows,
                                       size_t n) ST_MUST_CHECK;
+/* The `districts` layer from the audit (borrowed): one row per district in
+** the audit's order (audit.h). For single-layer formats it goes to the
+** sibling OUT.districts.EXT. */
+st_status st_inventory_write_districts(st_inventory *inv, const st_audit *a) ST_MUST_CHECK;
 /* Rename every output into place. */
 st_status st_inventory_commit(st_inventory *inv) ST_MUST_CHECK;
 /* Close; without a commit every temporary output is removed. NULL ok. */

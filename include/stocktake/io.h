@@ -107,6 +107,11 @@ void st_writer_close(st_writer *w);
 /* 1 if 'path' has an extension a writer knows. */
 int st_writer_supports(const char *path);
 
+/* Returns owned SQLite "file:" URI of path (percent-encoded, so that no
+** file name is mistaken for a URI) with '?query' appended; NULL on no
+** memory. */
+char *st_gpkg_uri(const char *path, const char *query);
+
 /* ---- coordinate reference systems (PROJ) ------------------------------ */
 
 typedef struct st_crs_transform st_crs_transform;

@@ -11,6 +11,9 @@
 
 #include <stdint.h>
 #include "stocktake/core.h"
+#include "stocktake/audit.h"
+#include "stocktake/defaults.h"
+#include "stocktake/place.h"
 #include "stocktake/finding.h"
 
 typedef enum { ST_FAIL_ON_NONE = 0, ST_FAIL_ON_WARNING, ST_FAIL_ON_ERROR } st_fail_on;
@@ -24,12 +27,25 @@ typedef struct st_run_options {
     const char *crs_override;    /* --crs for layers without a CRS, or NULL */
     st_fail_on fail_on;          /* findings at or above this fail the gate */
     const char *command_line;    /* recorded in run_info */
+    const char *districts;       /* --districts layer, or NULL (no placement) */
+    const char *district_key;    /* --district-key, or NULL (place.h) */
+    const char *region_key;      /* --region-key, or NULL */
+    const char *reference;       /* --reference CSV of expected counts, or NULL */
+    st_fill_mode fill;           /* --fill most-likely | draw */
+    uint64_t seed;               /* --seed for the draw */
     unsigned threads;            /* -j: worker threads of the per-feature
                                     stages; 0 = the number of online cores.
                                     The outputs are the same for any value. */
+    const char *report_dir;      /* --report DIR: report.json and report.html
+                                    written there (report.h), or NULL */
     /* Progress: called now and then from the calling thread; may be NULL. */
     void (*progress)(void *ud, const char *stage, long long done, long long total);
     void *progress_ud;
+    /* Memory limit in bytes (0: st_run_default_max_memory()). The run
+    ** estimates its need from the input sizes before reading and from
+    ** each feature while reading, and stops with ST_ERR_LIMIT before it
+    ** passes the limit (pipeline/guard.c, docs/reliability.md). */
+    uint64_t max_memory;
 } st_run_options;
 
 typedef struct st_run_layer {
@@ -78,6 +94,11 @@ typedef struct st_run_result {
     st_run_timing timings[ST_RUN_MAX_TIMINGS];  /* stages in run order, then
                                     "total"; for `run --timings` and bench */
     size_t ntimings;
+    st_audit *audit;             /* owned: the completeness audit (audit.h) */
+    st_districts *districts;     /* owned, or NULL: the district layer the
+                                    audit's polygons point into */
+    char *summary;               /* owned: the terminal summary (report.h) for
+                                    the CLI to print, or NULL */
 } st_run_result;
 
 /*
@@ -88,5 +109,14 @@ typedef struct st_run_result {
 st_status st_run_execute(const st_run_options *opt, st_diags *diags,
                          st_run_result **out) ST_MUST_CHECK;
 void st_run_result_free(st_run_result *r);
+
+/* The default memory limit: 75 % of physical memory or 8 GiB, whichever is
+** less. */
+uint64_t st_run_default_max_memory(void);
+
+/* Estimated bytes one feature (borrowed) adds to a run's peak memory,
+** stages included (the calibration is in pipeline/guard.c). */
+struct st_feature;
+uint64_t st_run_feature_estimate(const struct st_feature *f);
 
 #endif

@@ -243,6 +243,10 @@ void st_rules_ctx_reset_layer(st_rules_ctx *c);
 ** Uses the feature's current schema values. */
 int st_rules_when(st_rules_ctx *c, const st_default_rule *d, const st_feature *f);
 
+/* 1 if the condition of default rule 'd' reads schema field 'field' (the
+** defaults stage fills a field after the fields its conditions read). */
+int st_rules_when_uses(const st_default_rule *d, uint32_t field);
+
 /* The context's counter of unmapped values (borrowed from 'c'). */
 st_unmapped *st_rules_ctx_unmapped(st_rules_ctx *c);
 

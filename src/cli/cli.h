@@ -7,6 +7,7 @@
 #ifndef STOCKTAKE_CLI_H
 #define STOCKTAKE_CLI_H
 
+#include <stdint.h>
 #include <stdio.h>
 #include "stocktake/core.h"
 
@@ -60,6 +61,11 @@ void st_progress_end(st_progress *p);
 void st_cli_catch_interrupts(void);
 int st_cli_interrupted(void);          /* the signal number, or 0 */
 void st_cli_reraise(void);             /* no-op without a signal */
+
+/* Parse a size such as "512M", "8G", "1.5GiB" or "1000000" (bytes; K, M,
+** G, T are powers of 1024, with an optional "B" or "iB"). Returns 1 and
+** sets *bytes, or 0 when 's' is not a positive size. */
+int st_cli_parse_size(const char *s, uint64_t *bytes);
 
 /* Report a usage error for subcommand 'cmd' on stderr; returns ST_EXIT_ERROR. */
 int st_cli_usage_error(const char *cmd, const char *fmt, ...) ST_PRINTF(2, 3);

@@ -30,6 +30,7 @@
 #include "cli.h"
 #include "stocktake/feature.h"
 #include "stocktake/io.h"
+#include "stocktake/pipeline.h"
 
 void st_help_convert(FILE *out)
 {
@@ -47,6 +48,9 @@ void st_help_convert(FILE *out)
             "\n"
             "options:\n"
             "  --crs EPSG:N    CRS of an input that has none (or to overrule it)\n"
+            "  --max-memory SIZE  refuse (exit 2) a feature that alone needs more\n"
+            "                  memory than SIZE; convert streams, so memory grows\n"
+            "                  with the largest feature, not with the file\n"
             "  -q, --quiet     no progress display and no summary line\n"
             "  -h, --help      this help\n"
             "\n"
@@ -55,6 +59,7 @@ void st_help_convert(FILE *out)
 
 typedef struct convert_opts {
     int quiet;
+    uint64_t max_memory;     /* --max-memory: bound on one feature's need */
     const char *crs;
     const char *in, *out;
 } convert_opts;
@@ -74,6 +79,10 @@ static int parse_args(int argc, char **argv, convert_opts *o)
             if (++i >= argc)
                 return st_cli_usage_error("convert", "--crs needs a value (EPSG:N)");
             o->crs = argv[i];
+        } else if (options && !strcmp(a, "--max-memory")) {
+            if (++i >= argc || !st_cli_parse_size(argv[i], &o->max_memory))
+                return st_cli_usage_error("convert", "--max-memory takes a size such "
+                                          "as 512M or 4G");
         } else if (options && !strncmp(a, "--crs=", 6))
             o->crs = a + 6;
         else if (options && a[0] == '-' && a[1])
@@ -198,6 +207,21 @@ static void size_text_fields(survey *s)
     }
 }
 
+/* convert streams: memory grows with the largest feature, not the file.
+** --max-memory bounds that feature's estimated need (the run's estimate,
+** pipeline/guard.c), so one absurd feature fails early and cleanly. */
+static st_status check_memory(const convert_opts *o, const st_reader *r,
+                              const st_feature *f, st_diags *diags)
+{
+    uint64_t need = st_run_feature_estimate(f);
+    if (!o->max_memory || need <= o->max_memory)
+        return ST_OK;
+    st_loc loc = ST_LOC_FEATURE(st_reader_path(r), (long long)f->index);
+    return st_diags_add(diags, ST_SEV_ERROR, ST_ERR_LIMIT, &loc,
+                        "this feature alone needs about %llu MiB of memory, more than "
+                        "--max-memory allows", (unsigned long long)(need >> 20));
+}
+
 static st_status survey_input(const char *in, const st_read_options *ropt,
                               const convert_opts *o, st_diags *diags, survey *s)
 {
@@ -217,7 +241,9 @@ static st_status survey_input(const char *in, const st_read_options *ropt,
         if (f->geom.type != ST_GEOM_NULL && f->geom.type != ST_GEOM_OTHER)
             s->types |= 1u << f->geom.type;
         s->features++;
-        rc = measure_values(s, f);
+        rc = check_memory(o, r, f, diags);
+        if (rc == ST_OK)
+            rc = measure_values(s, f);
         st_feature_free(f);
         if (rc != ST_OK)
             break;

@@ -12,6 +12,7 @@
 #include <string.h>
 
 #include "cli.h"
+#include "stocktake/defaults.h"
 #include "stocktake/rules.h"
 
 void st_help_lint(FILE *out)
@@ -22,7 +23,8 @@ void st_help_lint(FILE *out)
             "Check rule files as one set, the way 'stocktake run -r' loads them:\n"
             "syntax, unknown fields (with suggestions), values outside the schema,\n"
             "map lines that can never apply, regular expressions that do not\n"
-            "compile, include cycles, default shares that do not add up to 100%%.\n"
+            "compile, include cycles, default shares that do not add up to 100%%,\n"
+            "and the content of defaults tables (columns, fields, values, shares).\n"
             "\n"
             "  -q, --quiet   print only the summary line\n"
             "\n"
@@ -109,6 +111,14 @@ int st_cmd_lint(int argc, char **argv)
     st_diags_init(&diags);
     st_rules *rules = NULL;
     st_status rc = st_rules_load(paths, n, &diags, &rules);
+    if (rc == ST_OK) {
+        /* The defaults stage reads the tables: the same check as a run's,
+        ** for no district in particular. */
+        st_defaults *d = NULL;
+        st_defaults_places none = {NULL, NULL, 0};
+        rc = st_defaults_new(rules, &none, &diags, &d);
+        st_defaults_free(d);
+    }
     if (!quiet)
         print_sorted(&diags);
     if (rc == ST_ERR_NOMEM)

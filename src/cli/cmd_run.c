@@ -1,7 +1,9 @@
 /*
 ** cli/cmd_run.c -- `stocktake run`: parse options, run the pipeline, print
-** the terminal summary, choose the exit code.
+** the terminal summary the library rendered (report.h), choose the exit
+** code: 0 done, 1 gate failed (outputs written), 2 error (nothing written).
 */
+#include <errno.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -22,14 +24,30 @@ void st_help_run(FILE *out)
             "                       .shp (one file per layer: OUT.set_aside.EXT,\n"
             "                       OUT.findings.EXT, OUT.run_info.csv, OUT.unmapped.csv)\n"
             "  -r, --rules FILE...  rule files (schema, footprint thresholds, map,\n"
-            "                       derive, check); see docs/rules.md\n"
-            "  --crs EPSG:N         CRS of input layers that do not state one\n"
+            "                       derive, check, defaults, gate); see docs/rules.md\n"
+            "  --districts FILE     district polygons (any readable layer); each building\n"
+            "                       goes to the district covering its point on surface;\n"
+            "                       adds the districts layer (docs/districts.md)\n"
+            "  --district-key FIELD the districts' key (default: the first field filled\n"
+            "                       with a distinct value on every district)\n"
+            "  --region-key FIELD   the districts' parent region, for region defaults\n"
+            "  --reference CSV      expected buildings per district (columns: key, count)\n"
+            "  --fill MODE          how defaults fill unknown fields: most-likely\n"
+            "                       (default) or draw (from the distribution, --seed)\n"
+            "  --seed N             seed of the draw (default 1)\n"
             "  -j, --threads N      worker threads (default: the number of cores); the\n"
             "                       outputs are the same for any N\n"
+            "  --report DIR         write DIR/report.json and DIR/report.html (a\n"
+            "                       self-contained page: map, charts, tables)\n"
+            "  --crs EPSG:N         CRS of input layers that do not state one\n"
+            "  --max-memory SIZE    stop early (exit 2) rather than need more memory\n"
+            "                       than SIZE (512M, 4G ...); default: 75%% of\n"
+            "                       physical memory or 8G, whichever is less\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
             "  --timings            after the run, a table of each stage's wall and\n"
             "                       CPU seconds, footprints per second and peak memory\n"
+            "                       (also with -q)\n"
             "  -h, --help           this text\n"
             "\n"
             "INPUT: .shp, .geojson, .geojsonl, .gpkg (FILE.gpkg:LAYER for one layer).\n"
@@ -38,7 +56,8 @@ void st_help_run(FILE *out)
             "\n"
             "Every feature read ends up once in buildings (ok, repaired) or in\n"
             "set_aside (duplicate, rejected); the summary shows the balance.\n"
-            "exit: 0 done; 1 done but the gate failed; 2 error, nothing written.\n");
+            "exit: 0 done; 1 done but the gate failed (outputs written, the report\n"
+            "says which gate and by how much); 2 error, nothing written.\n");
 }
 
 typedef struct run_args {
@@ -48,6 +67,20 @@ typedef struct run_args {
     int quiet;
     int timings;
 } run_args;
+
+/* A whole decimal number in [0, max]; 0 if it is not one. */
+static int parse_count(const char *s, unsigned long long max, unsigned long long *out)
+{
+    char *end = NULL;
+    if (!s[0] || s[0] == '-' || s[0] == '+')
+        return 0;
+    errno = 0;
+    unsigned long long v = strtoull(s, &end, 10);
+    if (errno || *end || v > max)
+        return 0;
+    *out = v;
+    return 1;
+}
 
 static void on_progress(void *ud, const char *stage, long long done, long long total)
 {
@@ -62,6 +95,8 @@ static int parse_args(int argc, char **argv, run_args *a)
     a->rules = calloc((size_t)argc, sizeof *a->rules);
     if (!a->inputs || !a->rules)
         return st_cli_usage_error("run", "out of memory");
+    a->opt.seed = 1;
+    a->opt.threads = 0;   /* the online cores (pipeline/pool.c) */
     for (int i = 1; i < argc; i++) {
         const char *arg = argv[i];
         int has_next = i + 1 < argc;
@@ -73,16 +108,42 @@ static int parse_args(int argc, char **argv, run_args *a)
             while (i + 1 < argc && argv[i + 1][0] != '-' &&
                    st_str_ends_with_ci(argv[i + 1], ".rules"))
                 a->rules[a->opt.nrules++] = argv[++i];
-        } else if ((!strcmp(arg, "-j") || !strcmp(arg, "--threads")) && has_next) {
-            const char *v = argv[++i];
-            char *end = NULL;
-            long n = strtol(v, &end, 10);
-            if (!*v || *end || n < 1 || n > 64)
-                return st_cli_usage_error("run", "-j takes a number of threads from 1 to 64, not '%s'",
-                                          v);
-            a->opt.threads = (unsigned)n;
-        } else if (!strcmp(arg, "--crs") && has_next)
+        } else if (!strcmp(arg, "--report") && has_next)
+            a->opt.report_dir = argv[++i];
+        else if (!strcmp(arg, "--crs") && has_next)
             a->opt.crs_override = argv[++i];
+        else if (!strcmp(arg, "--districts") && has_next)
+            a->opt.districts = argv[++i];
+        else if (!strcmp(arg, "--district-key") && has_next)
+            a->opt.district_key = argv[++i];
+        else if (!strcmp(arg, "--region-key") && has_next)
+            a->opt.region_key = argv[++i];
+        else if (!strcmp(arg, "--reference") && has_next)
+            a->opt.reference = argv[++i];
+        else if (!strcmp(arg, "--fill") && has_next) {
+            const char *v = argv[++i];
+            if (!strcmp(v, "most-likely"))
+                a->opt.fill = ST_FILL_MOST_LIKELY;
+            else if (!strcmp(v, "draw"))
+                a->opt.fill = ST_FILL_DRAW;
+            else
+                return st_cli_usage_error("run", "--fill takes most-likely or draw, not '%s'", v);
+        } else if (!strcmp(arg, "--seed") && has_next) {
+            unsigned long long v = 0;
+            if (!parse_count(argv[++i], UINT64_MAX, &v))
+                return st_cli_usage_error("run", "--seed takes a whole number, not '%s'", argv[i]);
+            a->opt.seed = v;
+        } else if ((!strcmp(arg, "-j") || !strcmp(arg, "--threads")) && has_next) {
+            unsigned long long v = 0;
+            if (!parse_count(argv[++i], ST_PLACE_MAX_THREADS, &v) || v == 0)
+                return st_cli_usage_error("run", "-j takes a number of threads from 1 to %d, "
+                                          "not '%s'", ST_PLACE_MAX_THREADS, argv[i]);
+            a->opt.threads = (unsigned)v;
+        } else if (!strcmp(arg, "--max-memory") && has_next) {
+            if (!st_cli_parse_size(argv[++i], &a->opt.max_memory))
+                return st_cli_usage_error("run", "--max-memory takes a size such as "
+                                          "512M or 4G, not '%s'", argv[i]);
+        }
         else if (!strcmp(arg, "--fail-on") && has_next) {
             const char *v = argv[++i];
             if (!strcmp(v, "warn") || !strcmp(v, "warning"))
@@ -91,10 +152,10 @@ static int parse_args(int argc, char **argv, run_args *a)
                 a->opt.fail_on = ST_FAIL_ON_ERROR;
             else
                 return st_cli_usage_error("run", "--fail-on takes warn or error, not '%s'", v);
-        } else if (!strcmp(arg, "-q") || !strcmp(arg, "--quiet"))
-            a->quiet = 1;
-        else if (!strcmp(arg, "--timings"))
+        } else if (!strcmp(arg, "--timings"))
             a->timings = 1;
+        else if (!strcmp(arg, "-q") || !strcmp(arg, "--quiet"))
+            a->quiet = 1;
         else if (arg[0] == '-' && arg[1])
             return st_cli_usage_error("run", "unknown or incomplete option '%s'", arg);
         else
@@ -104,53 +165,26 @@ static int parse_args(int argc, char **argv, run_args *a)
         return st_cli_usage_error("run", "say where to write the inventory with -o OUT");
     if (!a->opt.ninputs)
         return st_cli_usage_error("run", "give at least one input layer");
+    if ((a->opt.district_key || a->opt.region_key || a->opt.reference) && !a->opt.districts)
+        return st_cli_usage_error("run", "--district-key, --region-key and --reference "
+                                         "need --districts");
     a->opt.inputs = a->inputs;
     a->opt.rules = a->rules;
     return ST_EXIT_OK;
 }
 
-static void print_summary(const st_run_result *r, const char *output)
-{
-    fprintf(stderr, "\n%-24s %9s %9s %9s %9s %9s\n", "layer", "read", "buildings",
-            "repaired", "duplicate", "rejected");
-    for (size_t l = 0; l < r->nlayers; l++) {
-        const st_run_layer *L = &r->layers[l];
-        int balanced = L->read == L->kept + L->duplicate + L->rejected;
-        fprintf(stderr, "%-24s %9llu %9llu %9llu %9llu %9llu%s\n", L->name,
-                (unsigned long long)L->read, (unsigned long long)L->kept,
-                (unsigned long long)L->repaired, (unsigned long long)L->duplicate,
-                (unsigned long long)L->rejected, balanced ? "" : "  UNBALANCED");
-    }
-    fprintf(stderr, "read = buildings + set aside (duplicate + rejected) for every layer\n");
-    if (r->ncodes)
-        fprintf(stderr, "\nfindings: %llu error, %llu warning, %llu note; most frequent:\n",
-                (unsigned long long)r->findings[ST_SEV_ERROR],
-                (unsigned long long)r->findings[ST_SEV_WARNING],
-                (unsigned long long)r->findings[ST_SEV_NOTE]);
-    for (size_t c = 0; c < r->ncodes && c < 10; c++)
-        fprintf(stderr, "  %-28s %-8s %llu\n", r->codes[c].code,
-                r->codes[c].severity == ST_SEV_ERROR ? "error"
-                : r->codes[c].severity == ST_SEV_WARNING ? "warning" : "note",
-                (unsigned long long)r->codes[c].count);
-    if (r->nunmapped)
-        fprintf(stderr, "\nunmapped source values (add map lines for these first):\n");
-    for (size_t u = 0; u < r->nunmapped && u < 10; u++)
-        fprintf(stderr, "  %-12s %-28s %llu\n", r->unmapped[u].field, r->unmapped[u].value,
-                (unsigned long long)r->unmapped[u].count);
-    fprintf(stderr, "\ngate: %s%s%s\n", r->gate_failed ? "FAILED" : "passed",
-            r->gate_reason ? " -- " : "", r->gate_reason ? r->gate_reason : "");
-    fprintf(stderr, "inventory: %s\n", output);
-}
-
 /* One line per stage; the bench scripts read these lines (keep the form). */
 static void print_timings(const st_run_result *r)
 {
-    fprintf(stderr, "\n%-12s %10s %10s %14s %12s\n", "stage", "wall s", "cpu s",
+    fprintf(stderr, "\n%-16s %10s %10s %14s %12s\n", "stage", "wall s", "cpu s",
             "footprints/s", "peak MB");
     for (size_t i = 0; i < r->ntimings; i++) {
         const st_run_timing *t = &r->timings[i];
-        fprintf(stderr, "%-12s %10.3f %10.3f %14.0f %12.1f\n", t->stage, t->wall_s, t->cpu_s,
-                t->wall_s > 0 ? (double)t->items / t->wall_s : 0.0, (double)t->peak_rss_kb / 1024.0);
+        char rate[32] = "-";   /* not for stages too short to time or without features */
+        if (t->items && t->wall_s >= 0.001)
+            snprintf(rate, sizeof rate, "%.0f", (double)t->items / t->wall_s);
+        fprintf(stderr, "%-16s %10.3f %10.3f %14s %12.1f\n", t->stage, t->wall_s, t->cpu_s, rate,
+                (double)t->peak_rss_kb / 1024.0);
     }
 }
 
@@ -190,8 +224,8 @@ int st_cmd_run(int argc, char **argv)
         fprintf(stderr, "stocktake run: stopped (%s); nothing was written\n", st_status_name(st));
         rc = ST_EXIT_ERROR;
     } else {
-        if (!a.quiet)
-            print_summary(res, a.opt.output);
+        if (!a.quiet && res->summary)
+            fputs(res->summary, stderr);
         if (a.timings)
             print_timings(res);
         rc = res->gate_failed ? ST_EXIT_GATE : ST_EXIT_OK;

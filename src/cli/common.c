@@ -2,7 +2,10 @@
 ** cli/common.c -- what the subcommands share: diagnostics on stderr,
 ** a progress line, usage errors.
 */
+#include <ctype.h>
+#include <errno.h>
 #include <signal.h>
+#include <stdlib.h>
 #include <stdarg.h>
 #include <string.h>
 #include <time.h>
@@ -64,6 +67,31 @@ void st_cli_reraise(void)
         return;
     signal(sig, SIG_DFL);
     raise(sig);
+}
+
+int st_cli_parse_size(const char *s, uint64_t *bytes)
+{
+    static const char units[] = "KMGT";
+    char *end;
+    errno = 0;
+    double v = strtod(s, &end);
+    if (end == s || errno || !(v > 0))
+        return 0;
+    double scale = 1;
+    const char *u = strchr(units, toupper((unsigned char)*end));
+    if (*end && u) {
+        for (const char *k = units; k <= u; k++)
+            scale *= 1024;
+        end++;
+        if (*end == 'i' || *end == 'I')
+            end++;
+    }
+    if (*end == 'B' || *end == 'b')
+        end++;
+    if (*end || v * scale >= 18446744073709551615.0 || v * scale < 1)
+        return 0;
+    *bytes = (uint64_t)(v * scale);
+    return 1;
 }
 
 int st_cli_usage_error(const char *cmd, const char *fmt, ...)

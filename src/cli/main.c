@@ -1,6 +1,7 @@
 /*
 ** cli/main.c -- entry point: global options and the subcommand table.
 */
+#include <signal.h>
 #include <string.h>
 
 #include "cli.h"
@@ -43,6 +44,10 @@ static void version(void);
 
 int main(int argc, char **argv)
 {
+    /* A file-size limit (ulimit -f) must make a write fail with EFBIG,
+    ** which every writer reports and cleans up after, not kill the
+    ** process with SIGXFSZ and leave a half-written temporary file. */
+    signal(SIGXFSZ, SIG_IGN);
     if (argc < 2) {
         usage(stderr);
         return ST_EXIT_ERROR;

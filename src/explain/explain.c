@@ -235,30 +235,10 @@ static st_status sql_error(gpkg *g, int rc, const char *doing)
                         &loc, "SQLite error while %s: %s", doing, sqlite3_errmsg(g->db));
 }
 
-/* file:PATH?immutable=1 with the path percent-escaped where a URI needs it. */
-static char *immutable_uri(const char *path)
-{
-    st_buf b;
-    st_buf_init(&b, 0);
-    st_status rc = st_buf_puts(&b, path[0] == '/' ? "file://" : "file:");
-    for (const unsigned char *p = (const unsigned char *)path; rc == ST_OK && *p; p++) {
-        if (*p == '%' || *p == '?' || *p == '#' || *p <= 0x20 || *p >= 0x7f)
-            rc = st_buf_printf(&b, "%%%02X", *p);
-        else
-            rc = st_buf_append(&b, (const char *)p, 1);
-    }
-    if (rc == ST_OK)
-        rc = st_buf_puts(&b, "?immutable=1");
-    if (rc != ST_OK) {
-        st_buf_free(&b);
-        return NULL;
-    }
-    return st_buf_take(&b);
-}
 
 static st_status gpkg_open(gpkg *g)
 {
-    char *uri = immutable_uri(g->path);
+    char *uri = st_gpkg_uri(g->path, "immutable=1");
     if (!uri)
         return ST_ERR_NOMEM;
     int rc = sqlite3_open_v2(uri, &g->db, SQLITE_OPEN_READONLY | SQLITE_OPEN_URI, NULL);

@@ -2,9 +2,10 @@
 ** inventory/inventory.c -- the curated inventory's layers and columns.
 **
 ** Input:  features after every stage, the findings, run metadata.
-** Output: one GeoPackage with layers buildings, set_aside, findings and
-**         run_info, or, for single-layer formats, one file per layer
-**         (see st_inventory_sibling_path).
+** Output: one GeoPackage with layers buildings, set_aside, findings,
+**         run_info, unmapped and (with districts) districts, or, for
+**         single-layer formats, one file per layer (see
+**         st_inventory_sibling_path).
 ** Errors: whatever the writers report; nothing is renamed into place
 **         before st_inventory_commit, so a failed run leaves nothing.
 */
@@ -16,17 +17,17 @@
 #include "stocktake/inventory.h"
 #include "stocktake/io.h"
 
-enum { L_BUILDINGS, L_SET_ASIDE, L_FINDINGS, L_RUN_INFO, L_UNMAPPED, L_COUNT };
+enum { L_BUILDINGS, L_SET_ASIDE, L_FINDINGS, L_RUN_INFO, L_UNMAPPED, L_DISTRICTS, L_COUNT };
 
 static const char *const layer_names[L_COUNT] = {
-    "buildings", "set_aside", "findings", "run_info", "unmapped"};
+    "buildings", "set_aside", "findings", "run_info", "unmapped", "districts"};
 
 /* Our own leading columns; a source attribute with one of these names is
 ** written as src_<name>. */
 static const char *const building_cols[] = {
     "bid", "layer", "source_id", "status", "area_m2", "perimeter_m", "flags", "district"};
 static const char *const set_aside_cols[] = {
-    "bid", "layer", "source_id", "status", "reason", "duplicate_of"};
+    "bid", "layer", "source_id", "status", "reason", "duplicate_of", "district"};
 #define N_BUILDING_COLS (sizeof building_cols / sizeof building_cols[0])
 #define N_SET_ASIDE_COLS (sizeof set_aside_cols / sizeof set_aside_cols[0])
 
@@ -161,7 +162,7 @@ static st_status open_writers(st_inventory *inv)
 {
     if (inv->multi)
         return st_writer_open(inv->path, inv->diags, &inv->w[0]);
-    for (int l = 0; l < L_COUNT; l++) {
+    for (int l = 0; l < L_DISTRICTS; l++) {   /* districts: opened when written */
         /* run_info and unmapped are tables: CSV beside a single-layer output. */
         char *p;
         if (l == L_BUILDINGS)
@@ -309,7 +310,8 @@ st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,
     return rc;
 }
 
-st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs, size_t n)
+st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs, size_t n,
+                                      const char *const *district_names)
 {
     st_writer *w = writer_for(inv, L_SET_ASIDE);
     st_status rc = st_writer_begin_layer(w, "set_aside", &inv->sfields, ST_GEOM_OTHER);
@@ -327,6 +329,8 @@ st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs,
         inv->row[3] = (char *)st_feature_status_name(f->status);
         inv->row[4] = f->reason;
         inv->row[5] = f->status == ST_STATUS_DUPLICATE ? inv->scratch.data + dup : NULL;
+        inv->row[6] = (char *)(f->district >= 0 && district_names
+                                   ? district_names[f->district] : "none");
         place_source_values(inv, f, N_SET_ASIDE_COLS);
         rc = write_row(w, f, inv->row, inv->sfields.count, 0);
     }
@@ -409,6 +413,113 @@ st_status st_inventory_write_unmapped(st_inventory *inv, const char *const *rows
     static const char *const cols[] = {"field", "value", "count"};
     static const st_field_type types[] = {ST_FIELD_TEXT, ST_FIELD_TEXT, ST_FIELD_INTEGER};
     return write_table(inv, L_UNMAPPED, cols, types, 3, rows, n);
+}
+
+/* The districts layer's columns: ours, then five provenance shares a field. */
+static st_status district_fields(const st_audit *a, st_fields *out)
+{
+    static const char *const cols[] = {
+        "district", "region", "buildings", "repaired", "duplicate", "rejected",
+        "footprint_m2", "floor_m2", "floor_known", "expected", "ratio", "reference",
+        "findings_error", "findings_warning", "findings_note", "polygon_repair"};
+    static const st_field_type types[] = {
+        ST_FIELD_TEXT, ST_FIELD_TEXT, ST_FIELD_INTEGER, ST_FIELD_INTEGER, ST_FIELD_INTEGER,
+        ST_FIELD_INTEGER, ST_FIELD_REAL, ST_FIELD_REAL, ST_FIELD_INTEGER, ST_FIELD_INTEGER,
+        ST_FIELD_REAL, ST_FIELD_TEXT, ST_FIELD_INTEGER, ST_FIELD_INTEGER, ST_FIELD_INTEGER,
+        ST_FIELD_TEXT};
+    st_status rc = ST_OK;
+    for (size_t i = 0; rc == ST_OK && i < sizeof cols / sizeof cols[0]; i++)
+        rc = st_fields_add(out, cols[i], types[i], 0, 0, NULL);
+    for (uint32_t f = 0; rc == ST_OK && f < a->nfields; f++)
+        for (int p = ST_NPROV - 1; rc == ST_OK && p >= 0; p--) {
+            char *name = st_strdup_printf("%s_%s", a->fields[f],
+                                          st_provenance_name((st_provenance)p));
+            rc = name ? st_fields_add(out, name, ST_FIELD_REAL, 0, 0, NULL) : ST_ERR_NOMEM;
+            st_free(name);
+        }
+    return rc;
+}
+
+#define N_DISTRICT_COLS 16
+
+static st_status write_district(st_inventory *inv, st_writer *w, const st_audit *a,
+                                const st_audit_district *d, char **row, uint32_t ncols)
+{
+    st_status rc = ST_OK;
+    size_t at[N_DISTRICT_COLS];
+    const double nums[] = {(double)d->buildings, (double)d->repaired, (double)d->duplicate,
+                           (double)d->rejected, d->footprint_m2, d->floor_m2,
+                           (double)d->floor_known, (double)d->expected, d->ratio,
+                           (double)d->findings[ST_SEV_ERROR],
+                           (double)d->findings[ST_SEV_WARNING],
+                           (double)d->findings[ST_SEV_NOTE]};
+    static const char *const fmts[] = {"%.0f", "%.0f", "%.0f", "%.0f", "%.2f", "%.2f",
+                                       "%.0f", "%.0f", "%.4f", "%.0f", "%.0f", "%.0f"};
+    st_buf_clear(&inv->scratch);
+    for (size_t i = 0; i < 12; i++)
+        at[i] = scratch_num(inv, fmts[i], nums[i], &rc);
+    size_t nshare = (size_t)a->nfields * ST_NPROV;
+    size_t *sat = st_malloc((nshare ? nshare : 1) * sizeof *sat);
+    if (!sat)
+        return ST_ERR_NOMEM;
+    for (uint32_t f = 0; f < a->nfields; f++)
+        for (int p = ST_NPROV - 1; p >= 0; p--)
+            sat[(size_t)f * ST_NPROV + (size_t)(ST_NPROV - 1 - p)] =
+                scratch_num(inv, "%.4f",
+                            d->buildings ? (double)d->fields[f].by_prov[p] / (double)d->buildings
+                                         : 0.0, &rc);
+    if (rc == ST_OK) {
+        memset(row, 0, ncols * sizeof *row);
+        row[0] = d->key;
+        row[1] = d->region;
+        for (size_t i = 0; i < 8; i++)
+            row[2 + i] = inv->scratch.data + at[i];
+        if (d->expected < 0)
+            row[9] = NULL;
+        row[10] = isnan(d->ratio) ? NULL : inv->scratch.data + at[8];
+        row[11] = d->ref == ST_REF_NONE ? NULL : (char *)st_ref_state_name(d->ref);
+        for (size_t i = 0; i < 3; i++)
+            row[12 + i] = inv->scratch.data + at[9 + i];
+        row[15] = d->geom_repair;
+        for (size_t k = 0; k < nshare; k++)
+            row[N_DISTRICT_COLS + k] = d->buildings ? inv->scratch.data + sat[k] : NULL;
+        st_feature f;
+        memset(&f, 0, sizeof f);
+        if (d->geom)
+            f.geom = *d->geom;     /* borrowed view; write_row promotes a polygon */
+        rc = write_row(w, &f, row, ncols, 1);
+    }
+    st_free(sat);
+    return rc;
+}
+
+st_status st_inventory_write_districts(st_inventory *inv, const st_audit *a)
+{
+    if (!inv->multi && !inv->w[L_DISTRICTS]) {
+        char *p = st_inventory_sibling_path(inv->path, "districts");
+        if (!p)
+            return ST_ERR_NOMEM;
+        st_status rc = st_writer_open(p, inv->diags, &inv->w[L_DISTRICTS]);
+        st_free(p);
+        if (rc != ST_OK)
+            return rc;
+    }
+    st_fields fields;
+    st_fields_init(&fields);
+    st_status rc = district_fields(a, &fields);
+    char **row = rc == ST_OK ? st_calloc(fields.count, sizeof *row) : NULL;
+    if (rc == ST_OK && !row)
+        rc = ST_ERR_NOMEM;
+    st_writer *w = writer_for(inv, L_DISTRICTS);
+    if (rc == ST_OK)
+        rc = st_writer_begin_layer(w, "districts", &fields, ST_GEOM_MULTIPOLYGON);
+    for (size_t i = 0; rc == ST_OK && i < a->ndistricts; i++)
+        rc = write_district(inv, w, a, &a->districts[i], row, fields.count);
+    if (rc == ST_OK)
+        rc = st_writer_end_layer(w);
+    st_free(row);
+    st_fields_free(&fields);
+    return rc;
 }
 
 st_status st_inventory_commit(st_inventory *inv)

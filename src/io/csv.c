@@ -15,7 +15,10 @@
 **          or tab; missing and empty values are both written as nothing.
 **          Invalid UTF-8 in a value is replaced by U+FFFD. The WKT is GEOS's
 **          (st_geom_to_wkt): 2-D, up to 17 significant digits, so
-**          coordinates survive a round trip; a null geometry is empty.
+**          coordinates survive a round trip; a null geometry is empty. A
+**          geometry GEOS refuses to build (a two-point ring, an unclosed
+**          ring, a NaN: a set-aside footprint keeps what was read) is
+**          written from its coordinates as they are, same digits.
 ** Errors:  every write is checked; a failed write, flush or close is
 **          ST_ERR_IO naming the file; a geometry GEOS cannot build is
 **          ST_ERR_GEOS naming the feature. The temporary file is removed by
@@ -23,6 +26,7 @@
 ** Limits:  one layer per file (the format has no layers).
 */
 #include <errno.h>
+#include <math.h>
 #include <stdio.h>
 #include <string.h>
 #include <strings.h>
@@ -160,7 +164,76 @@ static st_status csvw_begin(st_writer *w, const char *name, const st_fields *fie
     return rc == ST_OK ? put_raw(w, "\r\n") : rc;
 }
 
-/* The feature's geometry as WKT in c->wkt ("" when null). */
+/* One coordinate as WKT: %.17g, and NaN/Inf spelled as GEOS writes them. */
+static st_status put_coord(st_buf *b, double v)
+{
+    if (isnan(v))
+        return st_buf_puts(b, "NaN");
+    if (isinf(v))
+        return st_buf_puts(b, v > 0 ? "Inf" : "-Inf");
+    return st_buf_printf(b, "%.17g", v);
+}
+
+/* Rings [first, end) of g as "(x y, ...), (...)". */
+static st_status put_rings(st_buf *b, const st_geom *g, uint32_t first, uint32_t end,
+                           int bare)
+{
+    st_status rc = ST_OK;
+    for (uint32_t r = first; rc == ST_OK && r < end; r++) {
+        rc = st_buf_puts(b, r > first ? ", " : "");
+        if (rc == ST_OK && !bare)
+            rc = st_buf_puts(b, "(");
+        for (uint32_t i = g->ring_coord[r]; rc == ST_OK && i < g->ring_coord[r + 1]; i++) {
+            rc = st_buf_puts(b, i > g->ring_coord[r] ? ", " : "");
+            if (rc == ST_OK)
+                rc = put_coord(b, g->xy[2 * i]);
+            if (rc == ST_OK)
+                rc = st_buf_puts(b, " ");
+            if (rc == ST_OK)
+                rc = put_coord(b, g->xy[2 * i + 1]);
+        }
+        if (rc == ST_OK && !bare)
+            rc = st_buf_puts(b, ")");
+    }
+    return rc;
+}
+
+/*
+** WKT written straight from the coordinate arrays, for the geometries GEOS
+** refuses to build (a ring of two points, a ring not closed, a NaN): a set
+** aside footprint keeps the geometry as read, so CSV must still hold it.
+** A collection is written as a multipolygon, as st_geom_to_geos() does.
+*/
+static st_status plain_wkt(const st_geom *g, st_buf *b)
+{
+    static const char *const names[] = {
+        "", "POINT", "LINESTRING", "POLYGON", "MULTIPOINT", "MULTILINESTRING",
+        "MULTIPOLYGON", "MULTIPOLYGON"};
+    st_geom_type t = g->type;
+    st_status rc = st_buf_puts(b, names[t]);
+    if (rc != ST_OK || g->nparts == 0 || g->ncoords == 0)
+        return rc == ST_OK ? st_buf_puts(b, " EMPTY") : rc;
+    int multi = t >= ST_GEOM_MULTIPOINT;
+    rc = st_buf_puts(b, " (");
+    for (uint32_t p = 0; rc == ST_OK && p < g->nparts; p++) {
+        uint32_t first = g->part_ring[p], end = g->part_ring[p + 1];
+        int wrap = multi && t != ST_GEOM_MULTIPOINT;
+        if (p)
+            rc = st_buf_puts(b, ", ");
+        if (rc == ST_OK && wrap && t != ST_GEOM_MULTILINESTRING)
+            rc = st_buf_puts(b, "(");
+        if (rc == ST_OK)
+            rc = put_rings(b, g, first, end,
+                           t == ST_GEOM_POINT || t == ST_GEOM_LINESTRING ||
+                               t == ST_GEOM_MULTIPOINT);
+        if (rc == ST_OK && wrap && t != ST_GEOM_MULTILINESTRING)
+            rc = st_buf_puts(b, ")");
+    }
+    return rc == ST_OK ? st_buf_puts(b, ")") : rc;
+}
+
+/* The feature's geometry as WKT in c->wkt ("" when null): GEOS's, or for
+** a geometry GEOS cannot build, plain_wkt(). */
 static st_status geometry_text(st_writer *w, const st_feature *f)
 {
     csv_out *c = w->impl;
@@ -168,7 +241,12 @@ static st_status geometry_text(st_writer *w, const st_feature *f)
     if (f->geom.type == ST_GEOM_NULL || f->geom.type == ST_GEOM_OTHER)
         return ST_OK;
     st_geos_clear_error(c->gx);
-    return st_geom_to_wkt(c->gx, &f->geom, &c->wkt);
+    st_status rc = st_geom_to_wkt(c->gx, &f->geom, &c->wkt);
+    if (rc == ST_ERR_GEOS) {
+        st_buf_clear(&c->wkt);
+        rc = plain_wkt(&f->geom, &c->wkt);
+    }
+    return rc;
 }
 
 static st_status csvw_write(st_writer *w, const st_feature *f)

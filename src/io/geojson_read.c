@@ -12,7 +12,7 @@
 **          on the largest feature, never on the size of the file.
 ** Output:  features in the source CRS: CRS84 (RFC 7946 section 4) unless a
 **          legacy top-level "crs" member names another one. Properties:
-**          strings as they are (invalid UTF-8 replaced by U+FFFD), numbers
+**          strings as they are (invalid UTF-8 and NUL replaced by U+FFFD), numbers
 **          as their literal text, booleans "true"/"false", null as missing,
 **          nested objects/arrays as compact JSON text (ST_FIELD_JSON). A
 **          field is added when its name first appears; its type comes from
@@ -333,6 +333,35 @@ static st_status ensure_typed(gj_reader *g, uint32_t count)
 
 /* Field index for a property name; names usually come in the same order
 ** in every feature, so the field after the previous one is tried first. */
+/*
+** Returns owned C string of the JSON string s[0..n): invalid UTF-8 and
+** NUL bytes (an escaped \u0000, which a C string would silently cut
+** short) each become U+FFFD. NULL on no memory.
+*/
+static char *text_copy(const char *s, size_t n)
+{
+    if (st_utf8_valid_prefix(s, n) == n && !memchr(s, 0, n))
+        return st_strndup(s, n);
+    st_buf b;
+    st_buf_init(&b, 0);
+    st_status rc = ST_OK;
+    for (size_t at = 0; rc == ST_OK && at <= n;) {
+        const char *nul = memchr(s + at, 0, n - at);
+        size_t len = nul ? (size_t)(nul - (s + at)) : n - at;
+        char *clean = st_utf8_sanitize(s + at, len);
+        rc = clean ? st_buf_puts(&b, clean) : ST_ERR_NOMEM;
+        st_free(clean);
+        if (rc == ST_OK && nul)
+            rc = st_buf_append(&b, "\xEF\xBF\xBD", 3);
+        at += len + 1;
+    }
+    if (rc != ST_OK) {
+        st_buf_free(&b);
+        return NULL;
+    }
+    return st_buf_take(&b);
+}
+
 static int property_name(gj_reader *g, const unsigned char *key, size_t n)
 {
     if (n > GJ_MAX_NAME)
@@ -340,10 +369,10 @@ static int property_name(gj_reader *g, const unsigned char *key, size_t n)
                        "bytes (limit)", GJ_MAX_NAME);
     st_buf_clear(&g->name);
     st_status rc;
-    if (st_utf8_valid_prefix((const char *)key, n) == n) {
+    if (st_utf8_valid_prefix((const char *)key, n) == n && !memchr(key, 0, n)) {
         rc = st_buf_append(&g->name, (const char *)key, n);
     } else {
-        char *clean = st_utf8_sanitize((const char *)key, n);
+        char *clean = text_copy((const char *)key, n);
         rc = clean ? st_buf_puts(&g->name, clean) : ST_ERR_NOMEM;
         st_free(clean);
     }
@@ -396,8 +425,8 @@ static int property_value(gj_reader *g, st_field_type type, const char *s, size_
         g->typed[i] = 1;
     }
     st_status rc;
-    if (type == ST_FIELD_TEXT && st_utf8_valid_prefix(s, n) != n) {
-        char *clean = st_utf8_sanitize(s, n);
+    if (type == ST_FIELD_TEXT && (st_utf8_valid_prefix(s, n) != n || memchr(s, 0, n))) {
+        char *clean = text_copy(s, n);
         rc = clean ? st_feature_set_value(g->cur, i, clean, strlen(clean)) : ST_ERR_NOMEM;
         st_free(clean);
     } else {
@@ -789,8 +818,7 @@ static int feature_member(gj_reader *g, frame *f, value_kind v, const char *s, s
     case M_ID:
         if (v == V_STRING || v == V_NUMBER) {
             st_free(g->cur->source_id);
-            g->cur->source_id = v == V_STRING && st_utf8_valid_prefix(s, n) != n
-                                ? st_utf8_sanitize(s, n) : st_strndup(s, n);
+            g->cur->source_id = text_copy(s, n);
             return g->cur->source_id ? 1 : cb_status(g, ST_ERR_NOMEM, "");
         }
         return skip_value(g, v);

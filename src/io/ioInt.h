@@ -173,10 +173,6 @@ float st_gpkg_rtree_up(double d);
 st_status st_gpkg_rtree_load(struct sqlite3 *db, const char *name, st_gpkg_box *boxes,
                              size_t n, char *err, size_t errlen) ST_MUST_CHECK;
 
-/* Returns owned SQLite "file:" URI of path (percent-encoded, so that no
-** file name is mistaken for a URI) with '?query' appended; NULL on no
-** memory. */
-char *st_gpkg_uri(const char *path, const char *query);
 /* Append name as an SQL identifier in double quotes ("" inside). */
 st_status st_gpkg_quote_ident(st_buf *b, const char *name) ST_MUST_CHECK;
 

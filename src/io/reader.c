@@ -4,7 +4,9 @@
 **
 ** Input:  a path, optionally "file.gpkg:layer".
 ** Output: features numbered 0.. in read order, coordinates reprojected.
-** Errors: a layer without a CRS and without --crs; a CRS PROJ does not know;
+** Errors: a path that is a folder, FIFO or device (only regular files are
+**         layers: a FIFO would block for ever); a layer without a CRS and
+**         without --crs; a CRS PROJ does not know;
 **         with strict_coords, a NaN/infinite coordinate or one PROJ cannot
 **         transform (each names the file and the feature index).
 */
@@ -104,6 +106,17 @@ st_status st_reader_open(const char *spec, const st_read_options *opt,
     st_fields_init(&r->fields);
     st_status rc = split_spec(spec, &r->path, &r->layer_request);
     if (rc != ST_OK) {
+        st_reader_close(r);
+        return rc;
+    }
+    /* A FIFO or device would block a probe (or a read) for ever, and a
+    ** layer is read more than once (convert); only regular files are
+    ** layers. A path that does not exist is left to the format's open. */
+    struct stat st;
+    if (stat(r->path, &st) == 0 && !S_ISREG(st.st_mode)) {
+        rc = st_reader_fail(r, ST_ERR_IO, -1, "cannot open: %s",
+                            S_ISDIR(st.st_mode) ? "it is a folder"
+                                                : "not a regular file (a FIFO or a device)");
         st_reader_close(r);
         return rc;
     }

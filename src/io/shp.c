@@ -11,7 +11,8 @@
 **          number; attributes as UTF-8 text, typed in the layer's fields.
 **          writer -- name.shp .shx .dbf .prj .cpg, built beside the target
 **          under the writer's temporary stem and renamed together on commit.
-** Errors:  a missing or truncated .shp/.shx/.dbf, or a .dbf whose record
+** Errors:  a missing or truncated .shp/.shx/.dbf, any of the files not a
+**          regular file (a FIFO would block for ever), or a .dbf whose record
 **          count differs from the .shp, is ST_ERR_FORMAT naming the file; a
 **          record Shapelib cannot decode is ST_ERR_FORMAT with the feature
 **          index and Shapelib's own message; failed writes are ST_ERR_IO.
@@ -43,6 +44,7 @@
 ** encoding becomes U+FFFD (iconv errors, then st_utf8_sanitize).
 */
 #include <errno.h>
+#include <fcntl.h>
 #include <iconv.h>
 #include <limits.h>
 #include <math.h>
@@ -51,6 +53,7 @@
 #include <string.h>
 #include <strings.h>
 #include <sys/stat.h>
+#include <unistd.h>
 
 #include <shapefil.h>
 
@@ -136,10 +139,52 @@ static int hook_close(SAFile file)
     return rc;
 }
 
+/*
+** Opening for reading: only a regular file. A FIFO (or a device) as the
+** .shp or one of its sidecars would block the open, or the reads, for
+** ever; opened without blocking and checked with fstat on the descriptor,
+** it is refused with EINVAL instead. Writing opens as Shapelib does.
+*/
+static SAFile hook_open(const char *path, const char *access)
+{
+    if (strchr(access, 'w') || strchr(access, '+') || strchr(access, 'a'))
+        return (SAFile)fopen(path, access);
+    int fd = open(path, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
+    if (fd < 0)
+        return NULL;
+    struct stat st;
+    if (fstat(fd, &st) != 0 || !S_ISREG(st.st_mode)) {
+        close(fd);
+        capture_note("not a regular file", path);
+        errno = EINVAL;
+        return NULL;
+    }
+    int flags = fcntl(fd, F_GETFL);
+    if (flags >= 0)
+        fcntl(fd, F_SETFL, flags & ~O_NONBLOCK);
+    FILE *fp = fdopen(fd, access);
+    if (!fp)
+        close(fd);
+    return (SAFile)fp;
+}
+
+/* hook_open for our own reads of headers and sidecars. */
+static FILE *open_for_reading(const char *path)
+{
+    return (FILE *)hook_open(path, "rb");
+}
+
+/* Why open_for_reading failed (right after it). */
+static const char *open_error(void)
+{
+    return errno == EINVAL ? "not a regular file (a FIFO or a device)" : strerror(errno);
+}
+
 /* Shapelib's stdio hooks with our error and write checks. */
 static void hooks_init(SAHooks *h)
 {
     SASetupDefaultHooks(h);
+    h->FOpen = hook_open;
     h->FWrite = hook_write;
     h->FFlush = hook_flush;
     h->FClose = hook_close;
@@ -217,9 +262,9 @@ static const char *base_name(const char *path)
 static st_status read_sidecar_text(st_reader *r, const char *path, char **out)
 {
     *out = NULL;
-    FILE *fp = fopen(path, "rb");
+    FILE *fp = open_for_reading(path);
     if (!fp)
-        return fail_file(r, path, ST_ERR_IO, -1, "cannot open: %s", strerror(errno));
+        return fail_file(r, path, ST_ERR_IO, -1, "cannot open: %s", open_error());
     st_buf b;
     st_buf_init(&b, ST_SHP_MAX_SIDECAR);
     char chunk[4096];
@@ -275,9 +320,9 @@ static st_status check_main_header(st_reader *r, const char *path, const char *w
                          "truncated %s: %lld bytes, but its header alone is 100",
                          what, size);
     unsigned char h[100];
-    FILE *fp = fopen(path, "rb");
+    FILE *fp = open_for_reading(path);
     if (!fp)
-        return fail_file(r, path, ST_ERR_IO, -1, "cannot open: %s", strerror(errno));
+        return fail_file(r, path, ST_ERR_IO, -1, "cannot open: %s", open_error());
     size_t got = fread(h, 1, sizeof h, fp);
     fclose(fp);
     if (got != sizeof h)

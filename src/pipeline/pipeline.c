@@ -1,16 +1,20 @@
 /*
 ** pipeline/pipeline.c -- one run, stage after stage, data flowing one way:
-** read -> footprint -> neighbours -> rules -> write.
+** read -> footprint -> neighbours -> place -> rules (map, derive, check)
+** -> defaults -> audit -> write (inventory, then the report).
 **
-** Input:  st_run_options (input layers, output path, gate threshold).
+** Input:  st_run_options (input layers, output path, rules, districts,
+**         reference counts, fill mode and seed, gate threshold).
 ** Output: the inventory (inventory.h) and an st_run_result with the
 **         balance per layer and the findings per code.
 ** Errors: any input or output error stops the run before anything is
 **         renamed into place (diagnostics say where); findings never do.
 ** Memory: every feature is held until the inventory is written, because
-**         the neighbour stage needs all layers together; each is made
-**         compact after reading (coordinates trimmed, attributes packed:
-**         docs/performance.md, memory per footprint).
+**         the neighbour stage needs all layers together; pipeline/guard.c
+**         keeps that under the run's memory limit and refuses an output
+**         that would overwrite an input, before anything is read. Each
+**         feature is made compact after reading (coordinates trimmed,
+**         attributes packed: docs/performance.md, memory per footprint).
 ** Threads: the per-feature stages (footprint checks, neighbour scans,
 **         rules) run on a pool of opt->threads workers (pool.c) over fixed
 **         chunks of ST_POOL_CHUNK features; each chunk's findings, pairs and
@@ -27,12 +31,17 @@
 #include <sys/resource.h>
 #include <time.h>
 
+#include "stocktake/audit.h"
+#include "stocktake/defaults.h"
 #include "stocktake/footprint.h"
 #include "stocktake/geomx.h"
 #include "stocktake/inventory.h"
 #include "stocktake/io.h"
 #include "stocktake/neighbours.h"
 #include "stocktake/pipeline.h"
+#include "stocktake/place.h"
+#include "guardInt.h"
+#include "stocktake/report.h"
 #include "stocktake/rules.h"
 #include "pipelineInt.h"
 
@@ -49,7 +58,21 @@ typedef struct run_state {
     st_footprint_config fcfg;
     st_neighbours_config ncfg;
     unsigned threads;            /* workers of the per-feature stages */
+    st_memory_budget budget;     /* --max-memory and the estimate so far */
+    char started[32];            /* UTC, ISO 8601 */
+    st_report_dist dist;         /* kept buildings, filled while writing */
+    st_districts *districts;     /* --districts, or NULL */
+    st_reference *reference;     /* --reference, or NULL */
+    st_defaults *defaults;       /* with rules */
+    st_unmapped *unmapped;       /* with rules: unmapped source values */
 } run_state;
+
+/* The files a run read, hashed for the report (role and path per entry). */
+typedef struct report_files {
+    st_report_file *items;
+    size_t count, cap;
+    char **paths;                /* owned copies the items point into */
+} report_files;
 
 static void progress(run_state *s, const char *stage, long long done, long long total)
 {
@@ -150,6 +173,8 @@ static st_status read_layer(run_state *s, size_t l)
             rc = ST_ERR_NOMEM;
         if (rc == ST_OK)
             rc = st_feature_pack_values(f);   /* one block: memory */
+        if (rc == ST_OK)
+            rc = st_run_guard_feature(&s->budget, f, st_reader_path(r), s->diags);
         if (rc == ST_OK)
             rc = push_feature(s, f);
         if (rc != ST_OK) {
@@ -457,11 +482,72 @@ static st_status apply_rules(run_state *s)
         rc = st_unmapped_merge(st_rules_ctx_unmapped(j.ctx[0]), st_rules_ctx_unmapped(j.ctx[w]));
     if (rc == ST_OK)
         rc = keep_unmapped(s, st_rules_ctx_unmapped(j.ctx[0]));
+    if (rc == ST_OK)
+        rc = st_unmapped_new(&s->unmapped);
+    if (rc == ST_OK)
+        rc = st_unmapped_merge(s->unmapped, st_rules_ctx_unmapped(j.ctx[0]));
     for (unsigned w = 0; j.ctx && w < s->threads; w++)
         st_rules_ctx_free(j.ctx[w]);
     st_free(j.ctx);
     st_free(chunks);
     return rc;
+}
+
+static int is_kept(const st_feature *f)
+{
+    return f->status == ST_STATUS_OK || f->status == ST_STATUS_REPAIRED;
+}
+
+static st_status place_buildings(run_state *s)
+{
+    if (!s->districts)
+        return ST_OK;
+    progress(s, "place", 0, (long long)s->nfeatures);
+    st_place_stats stats;
+    return st_place_features(s->districts, s->features, s->nfeatures, s->threads,
+                             ST_SEV_WARNING, &s->findings, s->diags, &stats);
+}
+
+/* Read the defaults tables now: a bad table stops the run before any data
+** is read. */
+static st_status prepare_defaults(run_state *s)
+{
+    size_t n = s->districts ? st_districts_count(s->districts) : 0;
+    const char **region = st_calloc(n ? n : 1, sizeof *region);
+    if (!region)
+        return ST_ERR_NOMEM;
+    for (size_t i = 0; i < n; i++)
+        region[i] = st_districts_get(s->districts, i)->region;
+    st_defaults_places pl = {s->districts ? st_districts_keys(s->districts) : NULL, region, n};
+    st_status rc = st_defaults_new(s->rules, &pl, s->diags, &s->defaults);
+    st_free(region);
+    return rc;
+}
+
+/* Learn from the observed values, then fill what is still unknown. */
+static st_status fill_defaults(run_state *s)
+{
+    if (!s->rules)
+        return ST_OK;
+    progress(s, "defaults", 0, (long long)s->nfeatures);
+    st_status rc = st_defaults_learn(s->defaults, s->features, s->nfeatures);
+    st_rules_ctx *ctx = NULL;
+    if (rc == ST_OK)
+        rc = st_rules_ctx_new(s->rules, &ctx);
+    for (size_t i = 0; rc == ST_OK && i < s->nfeatures; i++)
+        if (is_kept(s->features[i]))
+            rc = st_defaults_apply(s->defaults, ctx, s->features[i], s->opt->fill, s->opt->seed);
+    st_rules_ctx_free(ctx);
+    return rc;
+}
+
+static st_status run_audit(run_state *s)
+{
+    int fail_on = s->opt->fail_on == ST_FAIL_ON_WARNING ? ST_SEV_WARNING
+                : s->opt->fail_on == ST_FAIL_ON_ERROR ? ST_SEV_ERROR : -1;
+    st_audit_input in = {s->features, s->nfeatures, &s->findings, s->districts, s->rules,
+                         s->defaults, s->unmapped, s->reference, fail_on};
+    return st_audit_compute(&in, s->diags, &s->res->audit);
 }
 
 /* Findings in building order (stable: a stage's own order is kept). */
@@ -546,22 +632,25 @@ static st_status count_codes(run_state *s)
         if (g->severity > r->codes[c].severity)
             r->codes[c].severity = g->severity;
     }
-    qsort(r->codes, r->ncodes, sizeof *r->codes, by_count);
+    if (r->ncodes > 1)   /* qsort of a NULL array is undefined, even of 0 items */
+        qsort(r->codes, r->ncodes, sizeof *r->codes, by_count);
     return ST_OK;
 }
 
-static void decide_gate(run_state *s)
+/* The gate as the audit judged it (rule gate lines, then --fail-on): the
+** first failing line says why. */
+static st_status decide_gate(run_state *s)
 {
     st_run_result *r = s->res;
-    st_fail_on on = s->opt->fail_on;
-    uint64_t n = on == ST_FAIL_ON_WARNING ? r->findings[ST_SEV_WARNING] + r->findings[ST_SEV_ERROR]
-               : on == ST_FAIL_ON_ERROR ? r->findings[ST_SEV_ERROR] : 0;
-    if (!n)
-        return;
-    r->gate_failed = 1;
-    r->gate_reason = st_strdup_printf("--fail-on %s: %llu finding(s) at or above that severity",
-                                      on == ST_FAIL_ON_WARNING ? "warn" : "error",
-                                      (unsigned long long)n);
+    const st_audit *a = r->audit;
+    r->gate_failed = a->gate_failed;
+    for (size_t i = 0; i < a->ngates && !r->gate_reason; i++) {
+        const st_audit_gate *g = &a->gates[i];
+        if (!g->passed && g->fails && !(r->gate_reason = st_strdup_printf("%s (%s)", g->detail,
+                                                                          g->rule)))
+            return ST_ERR_NOMEM;
+    }
+    return ST_OK;
 }
 
 /* kept (or set-aside) features in bid order */
@@ -585,7 +674,7 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
     char when[32];
     st_now_iso8601(when);
     size_t nl = s->res->nlayers;
-    size_t n = 3 + nl;
+    size_t n = 3 + nl + 3;
     const char **kv = st_calloc(2 * n, sizeof *kv);
     char **owned = st_calloc(nl + 1, sizeof *owned);
     st_status rc = kv && owned ? ST_OK : ST_ERR_NOMEM;
@@ -609,13 +698,185 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
                 rc = ST_ERR_NOMEM;
         }
     }
+    char seed[32];
+    snprintf(seed, sizeof seed, "%llu", (unsigned long long)s->opt->seed);
+    size_t k = 3 + nl;
+    if (rc == ST_OK && s->districts) {
+        const st_districts *d = s->districts;
+        owned[nl] = st_strdup_printf(
+            "%s (%s): key %s, region %s, %zu districts, %zu polygon(s) repaired",
+            st_districts_path(d), st_districts_crs(d), st_districts_key_field(d),
+            st_districts_region_field(d) ? st_districts_region_field(d) : "none",
+            st_districts_count(d), st_districts_repaired(d));
+        kv[2 * k] = "districts";
+        kv[2 * k++ + 1] = owned[nl];
+        rc = owned[nl] ? ST_OK : ST_ERR_NOMEM;
+    }
+    if (s->rules) {
+        kv[2 * k] = "fill";
+        kv[2 * k++ + 1] = st_fill_mode_name(s->opt->fill);
+        kv[2 * k] = "seed";
+        kv[2 * k++ + 1] = seed;
+    }
+    n = k;
     if (rc == ST_OK)
         rc = st_inventory_write_run_info(inv, kv, n);
-    for (size_t l = 0; owned && l < nl; l++)
+    for (size_t l = 0; owned && l <= nl; l++)
         st_free(owned[l]);
     st_free(owned);
     st_free(kv);
     return rc;
+}
+
+/* Storeys field of the schema, or -1 (no rules). */
+static int32_t storeys_field(const run_state *s)
+{
+    return s->rules ? st_rules_field_find(s->rules, "storeys") : -1;
+}
+
+static void report_files_free(report_files *rf)
+{
+    for (size_t i = 0; i < rf->count; i++)
+        st_free(rf->paths[i]);
+    st_free(rf->paths);
+    st_free(rf->items);
+    memset(rf, 0, sizeof *rf);
+}
+
+/* Add 'path' (taken: freed here on failure or when already listed). */
+static st_status add_file(report_files *rf, const char *role, char *path)
+{
+    if (!path)
+        return ST_ERR_NOMEM;
+    for (size_t i = 0; i < rf->count; i++)
+        if (!strcmp(rf->paths[i], path)) {
+            st_free(path);
+            return ST_OK;
+        }
+    if (rf->count == rf->cap) {
+        size_t cap = rf->cap ? 2 * rf->cap : 8;
+        st_report_file *it = st_realloc(rf->items, cap * sizeof *it);
+        if (it)
+            rf->items = it;
+        char **p = it ? st_realloc(rf->paths, cap * sizeof *p) : NULL;
+        if (!p) {
+            st_free(path);
+            return ST_ERR_NOMEM;
+        }
+        rf->paths = p;
+        rf->cap = cap;
+    }
+    rf->paths[rf->count] = path;
+    memset(&rf->items[rf->count], 0, sizeof rf->items[rf->count]);
+    rf->items[rf->count].role = role;
+    rf->items[rf->count].path = path;
+    rf->count++;
+    return ST_OK;
+}
+
+/* A layer's file and, for a shapefile, its sibling files. */
+static st_status add_layer_files(report_files *rf, const char *role, const char *path)
+{
+    char **sib = NULL;
+    size_t n = 0;
+    st_status rc = st_report_file_siblings(path, &sib, &n);
+    for (size_t i = 0; i < n; i++) {
+        if (rc == ST_OK)
+            rc = add_file(rf, role, sib[i]);
+        else
+            st_free(sib[i]);
+    }
+    st_free(sib);
+    return rc;
+}
+
+static st_status collect_files(run_state *s, report_files *rf)
+{
+    st_status rc = ST_OK;
+    for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++)
+        rc = add_layer_files(rf, "input", s->res->layers[l].path);
+    for (size_t i = 0; rc == ST_OK && i < s->opt->nrules; i++)
+        rc = add_file(rf, "rules", st_strdup(s->opt->rules[i]));
+    for (size_t i = 0; rc == ST_OK && s->rules && i < st_rules_table_count(s->rules); i++)
+        rc = add_file(rf, "defaults table", st_strdup(st_rules_table(s->rules, i)->path));
+    if (rc == ST_OK && s->opt->districts)
+        rc = add_layer_files(rf, "districts", s->opt->districts);
+    if (rc == ST_OK && s->opt->reference)
+        rc = add_file(rf, "reference", st_strdup(s->opt->reference));
+    if (rc == ST_OK)
+        rc = st_report_hash_files(rf->items, rf->count, s->diags);
+    return rc;
+}
+
+/* res->outputs: the inventory, then the report files when asked for. */
+static st_status set_outputs(run_state *s)
+{
+    st_run_result *r = s->res;
+    r->outputs = st_calloc(3, sizeof *r->outputs);
+    if (!r->outputs)
+        return ST_ERR_NOMEM;
+    r->outputs[r->noutputs++] = st_strdup(s->opt->output);
+    if (s->opt->report_dir) {
+        const char *d = s->opt->report_dir;
+        size_t dl = strlen(d);
+        while (dl > 1 && d[dl - 1] == '/')
+            dl--;
+        r->outputs[r->noutputs++] = st_strdup_printf("%.*s/report.json", (int)dl, d);
+        r->outputs[r->noutputs++] = st_strdup_printf("%.*s/report.html", (int)dl, d);
+    }
+    for (size_t i = 0; i < r->noutputs; i++)
+        if (!r->outputs[i])
+            return ST_ERR_NOMEM;
+    return ST_OK;
+}
+
+static void report_input(run_state *s, const report_files *rf, const char *finished,
+                         st_report_input *in)
+{
+    memset(in, 0, sizeof *in);
+    in->run = s->res;
+    in->audit = s->res->audit;
+    in->dist = &s->dist;
+    in->files = rf ? rf->items : NULL;
+    in->nfiles = rf ? rf->count : 0;
+    in->command_line = s->opt->command_line;
+    in->started = s->started;
+    in->finished = finished;
+    in->outputs = (const char *const *)s->res->outputs;
+    in->noutputs = s->res->noutputs;
+}
+
+/* Render report.json and report.html under temporary names. */
+static st_status prepare_report(run_state *s, st_report_pending **rep)
+{
+    report_files rf;
+    memset(&rf, 0, sizeof rf);
+    progress(s, "report", 0, 1);
+    st_status rc = collect_files(s, &rf);
+    if (rc == ST_OK) {
+        char finished[32];
+        st_now_iso8601(finished);
+        st_report_input in;
+        report_input(s, &rf, finished, &in);
+        rc = st_report_prepare(&in, s->opt->report_dir, s->diags, rep);
+    }
+    report_files_free(&rf);
+    return rc;
+}
+
+static st_status make_summary(run_state *s)
+{
+    char finished[32];
+    st_now_iso8601(finished);
+    st_report_input in;
+    report_input(s, NULL, finished, &in);
+    st_buf b;
+    st_buf_init(&b, ST_REPORT_MAX_BYTES);
+    st_status rc = st_report_text(&in, &b);
+    if (rc == ST_OK)
+        s->res->summary = st_buf_take(&b);
+    st_buf_free(&b);
+    return rc == ST_OK && !s->res->summary ? ST_ERR_NOMEM : rc;
 }
 
 /* The unmapped values as rows of (field, value, count) for the inventory. */
@@ -651,6 +912,7 @@ static st_status write_inventory(run_state *s)
     for (size_t l = 0; l < nl; l++)
         layers[l] = (st_inventory_layer){s->res->layers[l].name, &s->fields[l]};
     st_inventory *inv = NULL;
+    const char *const *names = s->districts ? st_districts_keys(s->districts) : NULL;
     size_t nk = 0, ns = 0;
     st_feature **kept = NULL, **aside = NULL;
     progress(s, "write", 0, (long long)s->nfeatures);
@@ -670,18 +932,32 @@ static st_status write_inventory(run_state *s)
         aside = select_features(s, 0, &ns);
         rc = kept && aside ? ST_OK : ST_ERR_NOMEM;
     }
+    for (size_t i = 0; rc == ST_OK && i < nk; i++)
+        st_report_dist_add(&s->dist, kept[i], storeys_field(s));
     if (rc == ST_OK)
-        rc = st_inventory_write_buildings(inv, kept, nk, NULL);
+        rc = st_inventory_write_buildings(inv, kept, nk, names);
     if (rc == ST_OK)
-        rc = st_inventory_write_set_aside(inv, aside, ns);
+        rc = st_inventory_write_set_aside(inv, aside, ns, names);
     if (rc == ST_OK)
         rc = st_inventory_write_findings(inv, &s->findings);
+    if (rc == ST_OK && s->districts)
+        rc = st_inventory_write_districts(inv, s->res->audit);
     if (rc == ST_OK)
         rc = write_run_info(s, inv);
     if (rc == ST_OK)
         rc = write_unmapped(s, inv);
+    /* The report is rendered and written to temporary names before the
+    ** inventory is renamed into place, so an error in either leaves
+    ** nothing behind; the two renames after that do not fail in practice
+    ** (same folders, files already written). */
+    st_report_pending *rep = NULL;
+    if (rc == ST_OK && s->opt->report_dir)
+        rc = prepare_report(s, &rep);
     if (rc == ST_OK)
         rc = st_inventory_commit(inv);
+    if (rc == ST_OK && rep)
+        rc = st_report_commit(rep, s->diags);
+    st_report_pending_free(rep);
     st_inventory_close(inv);
     st_free(kept);
     st_free(aside);
@@ -735,40 +1011,77 @@ static clock_pair stage_done(run_state *s, const char *stage, clock_pair since, 
     return t;
 }
 
-static st_status run_stages(run_state *s)
+/* Districts, reference counts and defaults tables: all read before the
+** footprints, so a bad one stops the run early. */
+static st_status load_places(run_state *s)
 {
-    clock_pair start = clock_now(), t = start;
-    st_status rc = load_rules(s);
+    st_status rc = ST_OK;
+    if (s->opt->districts) {
+        st_districts_options d = {s->opt->districts, s->opt->district_key,
+                                  s->opt->region_key, NULL};
+        progress(s, "districts", 0, 0);
+        rc = st_districts_load(&d, s->diags, &s->districts);
+    }
+    if (rc == ST_OK && s->opt->reference)
+        rc = st_reference_load(s->opt->reference, s->diags, &s->reference);
+    if (rc == ST_OK && s->rules)
+        rc = prepare_defaults(s);
+    return rc;
+}
+
+/* Run one stage unless an earlier one failed, and time it (wall, CPU of
+** all threads, peak memory so far). */
+static st_status timed(run_state *s, st_status rc, const char *stage,
+                       st_status (*fn)(run_state *))
+{
+    if (rc != ST_OK)
+        return rc;
+    clock_pair t0 = clock_now();
+    rc = fn(s);
+    stage_done(s, stage, t0, s->nfeatures);
+    return rc;
+}
+
+static st_status read_layers(run_state *s)
+{
+    st_status rc = ST_OK;
     for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
         rc = read_layer(s, l);
-    uint64_t n = s->nfeatures;
-    if (rc == ST_OK) {
-        t = stage_done(s, "read", t, n);
-        rc = check_footprints(s);
-    }
-    if (rc == ST_OK) {
-        t = stage_done(s, "footprint", t, n);
-        rc = compare_neighbours(s);
-    }
-    if (rc == ST_OK) {
-        t = stage_done(s, "neighbours", t, n);
-        rc = apply_rules(s);
-    }
-    if (rc == ST_OK) {
-        if (s->rules)
-            t = stage_done(s, "rules", t, n);
-        sort_findings(&s->findings);
-        tally(s);
-        rc = count_codes(s);
-    }
-    if (rc == ST_OK) {
-        decide_gate(s);
-        rc = write_inventory(s);
-    }
-    if (rc == ST_OK) {
-        t = stage_done(s, "write", t, n);
-        stage_done(s, "total", start, n);
-    }
+    return rc;
+}
+
+static st_status tally_findings(run_state *s)
+{
+    sort_findings(&s->findings);
+    tally(s);
+    return count_codes(s);
+}
+
+static st_status outputs_and_summary(run_state *s)
+{
+    st_status rc = set_outputs(s);
+    /* the summary first: once the outputs are in place nothing may fail */
+    return rc == ST_OK ? make_summary(s) : rc;
+}
+
+static st_status run_stages(run_state *s)
+{
+    clock_pair start = clock_now();
+    st_status rc = timed(s, ST_OK, "rules", load_rules);
+    rc = timed(s, rc, "districts", load_places);
+    rc = timed(s, rc, "read", read_layers);
+    rc = timed(s, rc, "footprints", check_footprints);
+    rc = timed(s, rc, "neighbours", compare_neighbours);
+    rc = timed(s, rc, "place", place_buildings);
+    rc = timed(s, rc, "map-derive-check", apply_rules);
+    rc = timed(s, rc, "defaults", fill_defaults);
+    rc = timed(s, rc, "findings", tally_findings);
+    rc = timed(s, rc, "audit", run_audit);
+    rc = timed(s, rc, "gate", decide_gate);
+    rc = timed(s, rc, "summary", outputs_and_summary);
+    rc = timed(s, rc, "write", write_inventory);
+    if (rc == ST_OK)
+        stage_done(s, "total", start, s->nfeatures);
     return rc;
 }
 
@@ -783,6 +1096,7 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     s.opt = opt;
     s.diags = diags;
     s.threads = st_pool_threads(opt->threads);
+    st_now_iso8601(s.started);
     st_findings_init(&s.findings);
     s.res = st_calloc(1, sizeof *s.res);
     s.fields = st_calloc(opt->ninputs, sizeof *s.fields);
@@ -792,6 +1106,8 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
         s.res->nlayers = opt->ninputs;
         s.res->layers = st_calloc(opt->ninputs, sizeof *s.res->layers);
         if (s.res->layers)
+            rc = st_run_guard_start(opt, diags, &s.budget);
+        if (rc == ST_OK)
             rc = run_stages(&s);
     }
     for (size_t i = 0; i < s.nfeatures; i++)
@@ -802,7 +1118,14 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     st_free(s.fields);
     st_findings_free(&s.findings);
     st_geos_free(s.gx);
+    st_defaults_free(s.defaults);
+    st_unmapped_free(s.unmapped);
+    st_reference_free(s.reference);
     st_rules_free(s.rules);
+    if (s.res)
+        s.res->districts = s.districts;   /* the audit's polygons live there */
+    else
+        st_districts_free(s.districts);
     if (rc != ST_OK) {
         if (rc == ST_ERR_NOMEM)
             st_diags_add(diags, ST_SEV_ERROR, rc, NULL, "out of memory");
@@ -826,6 +1149,8 @@ void st_run_result_free(st_run_result *r)
     st_free(r->layers);
     st_free(r->codes);
     st_free(r->gate_reason);
+    st_audit_free(r->audit);
+    st_districts_free(r->districts);
     for (size_t i = 0; r->unmapped && i < r->nunmapped; i++) {
         st_free(r->unmapped[i].field);
         st_free(r->unmapped[i].value);
@@ -834,5 +1159,6 @@ void st_run_result_free(st_run_result *r)
     for (size_t i = 0; i < r->noutputs; i++)
         st_free(r->outputs[i]);
     st_free(r->outputs);
+    st_free(r->summary);
     st_free(r);
 }

@@ -11,13 +11,17 @@
 **          makes loading fail with ST_ERR_RULE.
 ** Limits:  ST_RULES_MAX_FILE_BYTES a file, ST_RULES_MAX_INCLUDE_DEPTH
 **          nested includes; a file included twice (not in a cycle) is read
-**          once.
+**          once. Only regular files are read: a FIFO, device or folder is
+**          an ST_ERR_IO error (a FIFO would block the load for ever).
 */
 #include <errno.h>
+#include <fcntl.h>
 #include <limits.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
 
 #include "rulesInt.h"
 
@@ -79,16 +83,49 @@ static st_status add_source(st_rules *R, char *name, char *real, char *text, siz
     return ST_OK;
 }
 
+/*
+** Opens 'path' for reading only if it is a regular file. A FIFO would
+** block the open (or the reads) for ever and a device may never end, so
+** neither is a rule file: opened without blocking, checked with fstat on
+** the descriptor itself (no race with a rename), then read normally.
+*/
+static FILE *open_regular(const char *path, const char **err)
+{
+    int fd = open(path, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
+    if (fd < 0) {
+        *err = strerror(errno);
+        return NULL;
+    }
+    struct stat st;
+    if (fstat(fd, &st) != 0) {
+        *err = strerror(errno);
+        close(fd);
+        return NULL;
+    }
+    if (!S_ISREG(st.st_mode)) {
+        *err = S_ISDIR(st.st_mode) ? "it is a folder" : "it is not a regular file";
+        close(fd);
+        return NULL;
+    }
+    int flags = fcntl(fd, F_GETFL);
+    if (flags >= 0)
+        fcntl(fd, F_SETFL, flags & ~O_NONBLOCK);
+    FILE *fp = fdopen(fd, "rb");
+    if (!fp) {
+        *err = strerror(errno);
+        close(fd);
+    }
+    return fp;
+}
+
 /* Reads 'path' whole. *err gets errno-like text on ST_ERR_IO. */
 static st_status read_file(const char *path, char **text, size_t *len, const char **err)
 {
     *text = NULL;
     *len = 0;
-    FILE *fp = fopen(path, "rb");
-    if (!fp) {
-        *err = strerror(errno);
+    FILE *fp = open_regular(path, err);
+    if (!fp)
         return ST_ERR_IO;
-    }
     st_status rc = ST_OK;
     st_buf b;
     st_buf_init(&b, ST_RULES_MAX_FILE_BYTES);

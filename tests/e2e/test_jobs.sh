@@ -2,14 +2,16 @@
 # stocktake run -j N: the outputs are byte-for-byte the same for any number
 # of threads. Four real layers together (about 35,000 footprints, so the
 # per-feature stages split into many chunks of work across layer
-# boundaries), the starter rule pack, GeoPackage and GeoJSON outputs, -j 1,
+# boundaries), the starter rule pack, the Bengaluru wards as districts
+# (placement runs on the threads too), GeoPackage and GeoJSON outputs, -j 1,
 # 2 and 4 compared with cmp. SOURCE_DATE_EPOCH fixes the timestamps (the
 # reproducible-builds convention); -j is not recorded in run_info.
 . "$ST_TESTS_ROOT/e2e/lib.sh"
 [ -n "$REAL" ] || skip "no real data at ../shared/data/real"
 ins="$REAL/north_macedonia/buildings.shp $REAL/belem/buildings.shp
 $REAL/bengaluru/BuildingFootprintsOSM.gpkg $REAL/banepa/buildings.geojson"
-for f in $ins; do [ -f "$f" ] || skip "missing $f"; done
+wards=$REAL/bengaluru/BBMP_wards_2022.geojson
+for f in $ins $wards; do [ -f "$f" ] || skip "missing $f"; done
 SOURCE_DATE_EPOCH=1700000000
 export SOURCE_DATE_EPOCH
 for ext in gpkg geojson; do
@@ -19,7 +21,7 @@ for ext in gpkg geojson; do
         # recorded in run_info is then the same too
         # shellcheck disable=SC2086
         (cd "$TMP/$ext-j$j" && "$STOCKTAKE" run -q -j "$j" -r "$ROOT/rules/starter.rules" \
-            -o "out.$ext" $ins) >"$TMP/stdout" 2>"$TMP/stderr" ||
+            --districts "$wards" -o "out.$ext" $ins) >"$TMP/stdout" 2>"$TMP/stderr" ||
             { cat "$TMP/stderr" >&2; fail "run -j $j to .$ext failed"; }
     done
     n=$(ls "$TMP/$ext-j1" | wc -l)

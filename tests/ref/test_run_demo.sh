@@ -45,4 +45,12 @@ done
 run_ok "$TMP/both.gpkg" "$OSM" "$CAD"
 $PY "$ST_TESTS_ROOT/e2e/balance.py" "$TMP/both.gpkg" "$OSM" "$CAD" >"$TMP/balance" 2>&1 ||
     { cat "$TMP/balance" >&2; fail "balance of the two layers together"; }
+# The whole inventory (buildings, set_aside with null, empty and invalid
+# source geometries, findings, run_info, unmapped) passes GDAL's GeoPackage
+# validator (validate_gpkg.py, GDAL 3.6.2; OGC GeoPackage 1.2 requirements).
+VALIDATE=/usr/lib/python3/dist-packages/osgeo_utils/samples/validate_gpkg.py
+if [ -f "$VALIDATE" ]; then
+    $PY "$VALIDATE" --extra -k "$TMP/both.gpkg" >"$TMP/validate" 2>&1 ||
+        { cat "$TMP/validate" >&2; fail "validate_gpkg.py refuses the demo inventory"; }
+fi
 exit 0
