@@ -50,7 +50,8 @@ town() {
 # place_opts DATA: --districts/--reference when this build's run has them.
 place_opts() {
     if "$ST" run --help 2>&1 | grep -q -- '--districts'; then
-        echo "--districts $1/districts.geojson --reference $1/reference_counts.csv"
+        echo "--districts $1/districts.geojson --district-key district_id" \
+            "--region-key region_id --reference $1/reference_counts.csv"
     fi
 }
 
