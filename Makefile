@@ -1,7 +1,7 @@
 # stocktake -- plain Makefile. Libraries through pkg-config; libcsv ships no
 # .pc file on Debian, so it is linked by name.
 #
-# Targets: all check demo bench install clean deps (see DEVELOPERS.md),
+# Targets: all check demo bench bench-compare install clean deps (see DEVELOPERS.md),
 #          fuzz valgrind (see docs/reliability.md)
 #   make BUILD=dir      build into another folder (parallel work trees)
 #   make SANITIZE=1     AddressSanitizer + UndefinedBehaviorSanitizer, into
@@ -55,7 +55,7 @@ FUZZ_SECONDS ?= 30
 FUZZ_CC  ?= clang
 FUZZ_BUILD ?= build-fuzz
 
-.PHONY: all check unit replay e2e ref demo bench deps install clean symbols \
+.PHONY: all check unit replay e2e ref demo bench bench-compare deps install clean symbols \
         fuzz fuzz-bins valgrind
 
 all: $(BIN)
@@ -134,9 +134,21 @@ demo: deps
 	@$(MAKE) --no-print-directory all
 	@STOCKTAKE=$(abspath $(BIN)) sh scripts/demo.sh
 
+# The floor of the geometry stage (bench/floor.c): not part of the library.
+FLOOR := $(BUILD)/bench/floor
+$(FLOOR): bench/floor.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) $(ALL_LDFLAGS) -o $@ $< $(PKG_LIBS)
+
+# Benchmarks are never part of check or CI.
 bench: deps
+	@$(MAKE) --no-print-directory all $(FLOOR)
+	@STOCKTAKE=$(abspath $(BIN)) FLOOR=$(abspath $(FLOOR)) sh bench/run.sh
+
+# stocktake against bench/peer.py (geopandas) on the same files, same session.
+bench-compare: deps
 	@$(MAKE) --no-print-directory all
-	@STOCKTAKE=$(abspath $(BIN)) sh bench/run.sh
+	@STOCKTAKE=$(abspath $(BIN)) sh bench/compare.sh
 
 install: $(BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/man/man1

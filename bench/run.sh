@@ -5,7 +5,8 @@
 #          BENCH_N        features in the benchmark town (default 1000000)
 #          BENCH_SEED     generator seed (default 1)
 #          BENCH_RUNS     timed runs per measurement (default 3)
-#          BENCH_SECTIONS sections to run, in order (default "read")
+#          BENCH_SECTIONS sections to run, in order (default "read run")
+#          BENCH_RUN_N    sizes of the 'run' section (default "100000 1000000")
 # Output:  tables on stdout. Data in bench/data/ (git-ignored), made once
 #          and reused while the generator and the options are unchanged:
 #          town-nN-sS/ holds the invented benchmark town of Quellamar
@@ -24,14 +25,15 @@
 #   place   run with districts, reference counts and defaults: the stages
 #           districts (layer, reference, defaults tables), place, defaults
 #           and audit from the run's own --timings, with 1 and 2 threads
-#   (to come) run at 100k and 1M, per-stage figures, the peer comparison
+#   run     the whole job at 100k and 1M, per stage, and the floor
+#           (bench/stages.sh); the peer comparison is 'make bench-compare'
 set -u
 cd "$(dirname "$0")/.." || exit 2
 ST=${STOCKTAKE:-build/stocktake}
 N=${BENCH_N:-1000000}
 SEED=${BENCH_SEED:-1}
 RUNS=${BENCH_RUNS:-3}
-SECTIONS=${BENCH_SECTIONS:-read place}
+SECTIONS=${BENCH_SECTIONS:-read place run}
 DISTRICTS=5000
 # The GeoPackage and Shapefile copies are made with 'stocktake convert',
 # which refuses (by design) swapped latitude/longitude, and a Point among
@@ -204,13 +206,13 @@ section_place() {
                 -o "$DATA/place/out.gpkg" "$DATA/buildings_osm.geojsonl" 2>"$DATA/place.err"
             rc=$?   # 1: the gate failed, the run is complete
             if [ "$rc" -gt 1 ]; then
-                problem "place run (-j $j) failed: $(grep -v '^timing:' "$DATA/place.err" | head -n 1)"
+                problem "place run (-j $j) failed: $(head -n 1 "$DATA/place.err")"
                 break
             fi
             # one line per run: districts place defaults audit wall rss
             awk -v t="$(tail -n 1 "$DATA/time1")" '
-                /^timing: districts / { d = $3 } /^timing: place / { p = $3 }
-                /^timing: defaults / { f = $3 } /^timing: audit / { a = $3 }
+                /^districts / { d = $2 } /^place / { p = $2 }
+                /^defaults / { f = $2 } /^audit / { a = $2 }
                 END { print d, p, f, a, t }' "$DATA/place.err" >>"$DATA/place_times"
             i=$((i + 1))
         done
@@ -234,10 +236,20 @@ section_place() {
     rm -f "$DATA/place/out.gpkg"
 }
 
-# ---- section: run (to come) -----------------------------------------------
-# 'stocktake run' at 100k and at 1M with the districts and reference counts
-# of $DATA, wall time and peak RSS per N; then per-stage figures from the
-# run's own timing; then the peer comparison. Add each as section_NAME here.
+# ---- section: run ------------------------------------------------------------
+# The whole job (stocktake run with bench/bench.rules, the districts and the
+# reference counts) at 100,000 and 1,000,000 footprints, GeoPackage and
+# GeoJSONL: per-stage wall, CPU, footprints/s and peak memory from the run's
+# own --timings, end to end from GNU time, and the floor (bench/floor.c: the
+# bare read-validate-index loop). bench/stages.sh does the work; its sizes
+# are BENCH_RUN_N (default "100000 1000000"). The peer comparison is
+# 'make bench-compare' (bench/compare.sh), not part of this target.
+section_run() {
+    echo
+    echo "== run: the whole job, per stage (bench/stages.sh)"
+    STAGES_N=${BENCH_RUN_N:-100000 1000000} BENCH_SEED=$SEED BENCH_RUNS=$RUNS \
+        STOCKTAKE=$ST sh bench/stages.sh || problem "bench/stages.sh failed"
+}
 
 # ---- main -------------------------------------------------------------------
 echo "stocktake benchmarks: $("$ST" --version 2>/dev/null | head -n 1)"
@@ -252,6 +264,7 @@ for s in $SECTIONS; do
     case $s in
         read) section_read ;;
         place) section_place ;;
+        run) section_run ;;
         *) problem "unknown section '$s'" ;;
     esac
 done

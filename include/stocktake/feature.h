@@ -142,6 +142,9 @@ typedef struct st_feature {
     char **values;         /* nvalues source attributes, owned, NULL = missing;
                               values[i] belongs to field i of its layer */
     uint32_t nvalues;
+    uint32_t values_packed;/* 0, or: the strings live in the block of
+                              'values' itself (st_feature_pack_values) and
+                              are not freed one by one */
 
     /* Filled by later stages. */
     uint64_t bid;          /* stable building id */
@@ -162,6 +165,13 @@ void st_feature_free(st_feature *f);
 ** value array as needed. */
 st_status st_feature_set_value(st_feature *f, uint32_t i, const char *value,
                                size_t len) ST_MUST_CHECK;
+/*
+** Move the source attributes into one block (the pointer array followed by
+** the strings): one allocation instead of one per value, for features held
+** by the million (docs/performance.md). Values read the same; a later
+** st_feature_set_value unpacks first. On ST_ERR_NOMEM nothing changes.
+*/
+st_status st_feature_pack_values(st_feature *f) ST_MUST_CHECK;
 /* Attribute i or NULL when missing or beyond the feature's values. */
 const char *st_feature_value(const st_feature *f, uint32_t i);
 /* Number of non-empty source attributes (used to choose among duplicates). */

@@ -33,7 +33,9 @@ typedef struct st_run_options {
     const char *reference;       /* --reference CSV of expected counts, or NULL */
     st_fill_mode fill;           /* --fill most-likely | draw */
     uint64_t seed;               /* --seed for the draw */
-    unsigned threads;            /* -j: threads for placement (0 = 1) */
+    unsigned threads;            /* -j: worker threads of the per-feature
+                                    stages; 0 = the number of online cores.
+                                    The outputs are the same for any value. */
     const char *report_dir;      /* --report DIR: report.json and report.html
                                     written there (report.h), or NULL */
     /* Progress: called now and then from the calling thread; may be NULL. */
@@ -66,13 +68,16 @@ typedef struct st_run_unmapped {
     uint64_t count;
 } st_run_unmapped;
 
-/* Wall time of one stage of the run (monotonic clock). */
-typedef struct st_run_time {
-    const char *stage;           /* static: "read", "place", "defaults", ... */
-    double seconds;
-} st_run_time;
-
-#define ST_RUN_MAX_TIMES 16
+/* Time and memory of one stage of a run (all the run's threads together). */
+#define ST_RUN_MAX_TIMINGS 16
+typedef struct st_run_timing {
+    const char *stage;           /* static: "read", "footprint", ... "total" */
+    double wall_s;               /* elapsed seconds */
+    double cpu_s;                /* CPU seconds, user + system, all threads */
+    uint64_t items;              /* features the stage went through */
+    long peak_rss_kb;            /* the process's peak resident set so far,
+                                    at the stage's end (0: unknown) */
+} st_run_timing;
 
 typedef struct st_run_result {
     st_run_layer *layers;
@@ -86,8 +91,9 @@ typedef struct st_run_result {
     size_t nunmapped;
     char **outputs;              /* files written */
     size_t noutputs;
-    st_run_time times[ST_RUN_MAX_TIMES];  /* stages in run order */
-    size_t ntimes;
+    st_run_timing timings[ST_RUN_MAX_TIMINGS];  /* stages in run order, then
+                                    "total"; for `run --timings` and bench */
+    size_t ntimings;
     st_audit *audit;             /* owned: the completeness audit (audit.h) */
     st_districts *districts;     /* owned, or NULL: the district layer the
                                     audit's polygons point into */

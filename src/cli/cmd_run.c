@@ -35,7 +35,8 @@ void st_help_run(FILE *out)
             "  --fill MODE          how defaults fill unknown fields: most-likely\n"
             "                       (default) or draw (from the distribution, --seed)\n"
             "  --seed N             seed of the draw (default 1)\n"
-            "  -j, --threads N      threads for placement (default 1)\n"
+            "  -j, --threads N      worker threads (default: the number of cores); the\n"
+            "                       outputs are the same for any N\n"
             "  --report DIR         write DIR/report.json and DIR/report.html (a\n"
             "                       self-contained page: map, charts, tables)\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
@@ -44,7 +45,9 @@ void st_help_run(FILE *out)
             "                       physical memory or 8G, whichever is less\n"
             "  --fail-on warn|error exit 1 when findings of that severity or worse exist\n"
             "  -q, --quiet          no progress display and no summary\n"
-            "  --timings            print the wall time of each stage (also with -q)\n"
+            "  --timings            after the run, a table of each stage's wall and\n"
+            "                       CPU seconds, footprints per second and peak memory\n"
+            "                       (also with -q)\n"
             "  -h, --help           this text\n"
             "\n"
             "INPUT: .shp, .geojson, .geojsonl, .gpkg (FILE.gpkg:LAYER for one layer).\n"
@@ -93,7 +96,7 @@ static int parse_args(int argc, char **argv, run_args *a)
     if (!a->inputs || !a->rules)
         return st_cli_usage_error("run", "out of memory");
     a->opt.seed = 1;
-    a->opt.threads = 1;
+    a->opt.threads = 0;   /* the online cores (pipeline/pool.c) */
     for (int i = 1; i < argc; i++) {
         const char *arg = argv[i];
         int has_next = i + 1 < argc;
@@ -170,6 +173,21 @@ static int parse_args(int argc, char **argv, run_args *a)
     return ST_EXIT_OK;
 }
 
+/* One line per stage; the bench scripts read these lines (keep the form). */
+static void print_timings(const st_run_result *r)
+{
+    fprintf(stderr, "\n%-16s %10s %10s %14s %12s\n", "stage", "wall s", "cpu s",
+            "footprints/s", "peak MB");
+    for (size_t i = 0; i < r->ntimings; i++) {
+        const st_run_timing *t = &r->timings[i];
+        char rate[32] = "-";   /* not for stages too short to time or without features */
+        if (t->items && t->wall_s >= 0.001)
+            snprintf(rate, sizeof rate, "%.0f", (double)t->items / t->wall_s);
+        fprintf(stderr, "%-16s %10.3f %10.3f %14s %12.1f\n", t->stage, t->wall_s, t->cpu_s, rate,
+                (double)t->peak_rss_kb / 1024.0);
+    }
+}
+
 int st_cmd_run(int argc, char **argv)
 {
     run_args a;
@@ -186,9 +204,15 @@ int st_cmd_run(int argc, char **argv)
     a.opt.progress_ud = &p;
     st_buf cmd;
     st_buf_init(&cmd, 1 << 16);
-    for (int i = 0; i < argc; i++)
+    /* -j is left out of the recorded command: it changes no output. */
+    for (int i = 0; i < argc; i++) {
+        if ((!strcmp(argv[i], "-j") || !strcmp(argv[i], "--threads")) && i + 1 < argc) {
+            i++;
+            continue;
+        }
         if (st_buf_printf(&cmd, "%s%s", i ? " " : "stocktake ", argv[i]) != ST_OK)
             break;
+    }
     a.opt.command_line = cmd.data;
     st_diags d;
     st_diags_init(&d);
@@ -202,8 +226,8 @@ int st_cmd_run(int argc, char **argv)
     } else {
         if (!a.quiet && res->summary)
             fputs(res->summary, stderr);
-        for (size_t t = 0; a.timings && t < res->ntimes; t++)
-            fprintf(stderr, "timing: %-18s %9.3f s\n", res->times[t].stage, res->times[t].seconds);
+        if (a.timings)
+            print_timings(res);
         rc = res->gate_failed ? ST_EXIT_GATE : ST_EXIT_OK;
     }
     st_run_result_free(res);

@@ -295,7 +295,7 @@ void st_feature_free(st_feature *f)
     st_free(f->source_id);
     st_geom_clear(&f->geom);
     st_geom_clear(&f->source_geom);
-    for (uint32_t i = 0; i < f->nvalues; i++)
+    for (uint32_t i = 0; !f->values_packed && i < f->nvalues; i++)
         st_free(f->values[i]);
     st_free(f->values);
     st_free(f->reason);
@@ -305,9 +305,64 @@ void st_feature_free(st_feature *f)
     st_free(f);
 }
 
+/* Give each value of a packed feature its own allocation again. */
+static st_status unpack_values(st_feature *f)
+{
+    char **v = st_calloc(f->nvalues ? f->nvalues : 1, sizeof *v);
+    if (!v)
+        return ST_ERR_NOMEM;
+    for (uint32_t i = 0; i < f->nvalues; i++) {
+        if (f->values[i] && !(v[i] = st_strdup(f->values[i]))) {
+            for (uint32_t k = 0; k < i; k++)
+                st_free(v[k]);
+            st_free(v);
+            return ST_ERR_NOMEM;
+        }
+    }
+    st_free(f->values);
+    f->values = v;
+    f->values_packed = 0;
+    return ST_OK;
+}
+
+st_status st_feature_pack_values(st_feature *f)
+{
+    if (f->values_packed || f->nvalues == 0)
+        return ST_OK;
+    size_t head = (size_t)f->nvalues * sizeof *f->values, bytes = head;
+    for (uint32_t i = 0; i < f->nvalues; i++)
+        bytes += f->values[i] ? strlen(f->values[i]) + 1 : 0;
+    if (bytes > UINT32_MAX)
+        return ST_OK;   /* not worth it: leave the values as they are */
+    char *block = st_malloc(bytes);
+    if (!block)
+        return ST_ERR_NOMEM;
+    char **v = (char **)(void *)block;
+    char *text = block + head;
+    for (uint32_t i = 0; i < f->nvalues; i++) {
+        v[i] = NULL;
+        if (f->values[i]) {
+            size_t n = strlen(f->values[i]) + 1;
+            memcpy(text, f->values[i], n);
+            v[i] = text;
+            text += n;
+            st_free(f->values[i]);
+        }
+    }
+    st_free(f->values);
+    f->values = v;
+    f->values_packed = (uint32_t)bytes;
+    return ST_OK;
+}
+
 st_status st_feature_set_value(st_feature *f, uint32_t i, const char *value,
                                size_t len)
 {
+    if (f->values_packed) {
+        st_status rc = unpack_values(f);
+        if (rc != ST_OK)
+            return rc;
+    }
     if (i >= f->nvalues) {
         char **v = st_realloc(f->values, ((size_t)i + 1) * sizeof *v);
         if (!v)

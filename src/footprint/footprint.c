@@ -82,6 +82,9 @@ typedef struct fp_run {
     GEOSGeometry *final_gx;    /* GEOS twin of a valid 'work' (unwrapped), or NULL */
     int unwrapped;             /* work's longitudes are shifted by st_fp_unwrap */
     double source_area;
+    double source_perimeter;
+    int measured_as_read;      /* source_area was measured on a 'work' that
+                                  was bit for bit the geometry as read */
     double area, perimeter;
 } fp_run;
 
@@ -525,6 +528,18 @@ static int rejected(const fp_run *r)
     return r->status == ST_STATUS_REJECTED;
 }
 
+/* 1 if a and b hold the same type, parts, rings and coordinates, bit for
+** bit (so any measure of one is the measure of the other). */
+static int same_geom(const st_geom *a, const st_geom *b)
+{
+    if (a->type != b->type || a->nparts != b->nparts || a->nrings != b->nrings ||
+        a->ncoords != b->ncoords)
+        return 0;
+    return (!a->nparts || !memcmp(a->part_ring, b->part_ring, (a->nparts + 1) * sizeof *a->part_ring)) &&
+           (!a->nrings || !memcmp(a->ring_coord, b->ring_coord, (a->nrings + 1) * sizeof *a->ring_coord)) &&
+           (!a->ncoords || !memcmp(a->xy, b->xy, 2 * (size_t)a->ncoords * sizeof *a->xy));
+}
+
 /* Everything up to validity and repair; r->work then holds the result. */
 static st_status check_geometry(fp_run *r)
 {
@@ -542,7 +557,8 @@ static st_status check_geometry(fp_run *r)
     double perimeter;
     st_footprint_measure(r->ck, &r->work, &r->source_area, &perimeter);
     r->area = r->source_area;
-    r->perimeter = perimeter;
+    r->perimeter = r->source_perimeter = perimeter;
+    r->measured_as_read = same_geom(&r->work, &r->f->geom);
     fp_scan s;
     if ((rc = st_fp_scan_rings(r->ck, &r->work, r->cfg->spike_angle_deg, &s)) != ST_OK)
         return rc;
@@ -565,7 +581,14 @@ static st_status run_checks(fp_run *r)
     st_status rc = check_geometry(r);
     if (rc != ST_OK || rejected(r))
         return rc;
-    st_footprint_measure(r->ck, &r->work, &r->area, &r->perimeter);
+    /* Geodesic measures are the costliest step of a clean footprint: when
+    ** 'work' is still bit for bit what was measured above, reuse them. */
+    if (r->measured_as_read && same_geom(&r->work, &r->f->geom)) {
+        r->area = r->source_area;
+        r->perimeter = r->source_perimeter;
+    } else {
+        st_footprint_measure(r->ck, &r->work, &r->area, &r->perimeter);
+    }
     r->area = fmax(r->area, 0.0);   /* a kept invalid source can net below 0 */
     if ((rc = check_shape(r)) != ST_OK)
         return rc;

@@ -51,18 +51,21 @@ void st_footprint_measure(const st_footprint_checker *ck, const st_geom *g,
                           double *area_m2, double *perimeter_m)
 {
     double area = 0.0, perimeter = 0.0;
-    if (is_polygonal(g)) {
-        for (uint32_t p = 0; p < g->nparts; p++)
-            area += st_fp_part_area(ck, g, p);
-        /* The outline only -- the shells' length, as pyproj's
-        ** geometry_area_perimeter reports it (holes add no perimeter). */
-        for (uint32_t p = 0; p < g->nparts; p++) {
+    /* One pass, each ring measured once: the shell gives the outline (its
+    ** length, as pyproj's geometry_area_perimeter reports it: holes add no
+    ** perimeter) and its area; holes subtract theirs. */
+    for (uint32_t p = 0; is_polygonal(g) && p < g->nparts; p++) {
+        double part = 0.0;   /* summed as st_fp_part_area sums it */
+        for (uint32_t r = g->part_ring[p]; r < g->part_ring[p + 1]; r++) {
             double a, len;
-            if (g->part_ring[p] == g->part_ring[p + 1])
-                continue;
-            st_fp_ring_measure(ck, g, g->part_ring[p], &a, &len);
-            perimeter += len;
+            st_fp_ring_measure(ck, g, r, &a, &len);
+            /* Orientation is not a validity rule (REFERENCES.md 3.1), so take
+            ** each ring's size and let holes subtract (section 2, row 12b). */
+            part += r == g->part_ring[p] ? fabs(a) : -fabs(a);
+            if (r == g->part_ring[p])
+                perimeter += len;
         }
+        area += part;
     }
     *area_m2 = area;
     *perimeter_m = perimeter;

@@ -53,6 +53,10 @@ typedef struct gpkg_layer {
     double extent[4];           /* minx, miny, maxx, maxy */
     int has_extent;
     uint64_t written;
+    double env[4];              /* envelope of the feature being inserted */
+    int has_env;
+    st_gpkg_box *boxes;         /* owned: the R-tree entries so far */
+    size_t nboxes, capboxes;
 } gpkg_layer;
 
 typedef struct gpkg_writer {
@@ -225,6 +229,7 @@ static void layer_free(gpkg_layer *l)
     sqlite3_finalize(l->insert);
     st_free(l->table);
     st_free(l->types);
+    st_free(l->boxes);
     memset(l, 0, sizeof *l);
 }
 
@@ -366,8 +371,7 @@ static st_status register_layer(st_writer *w, const char *table, st_geom_type ty
     sqlite3_stmt *s = NULL;
     st_status rc = prepare(w,
         "INSERT INTO gpkg_contents (table_name, data_type, identifier, description, "
-        "last_change, srs_id) VALUES (?1, ?2, ?1, '', ?4, ?3)", &s,
-        "adding to gpkg_contents");
+        "last_change, srs_id) VALUES (?1, ?2, ?1, '', ?4, ?3)", &s, "adding to gpkg_contents");
     if (rc != ST_OK)
         return rc;
     /* SOURCE_DATE_EPOCH when set (reproducible files); the spec's form
@@ -486,6 +490,7 @@ static st_status bind_geometry(st_writer *w, const st_feature *f)
         sqlite3_bind_null(l->insert, 1);
         return ST_OK;
     }
+    l->has_env = 0;
     st_geom as = *src;   /* shallow: only the type may differ */
     as.type = fit_type(l->declared, src);
     if (as.type == ST_GEOM_NULL)
@@ -502,6 +507,10 @@ static st_status bind_geometry(st_writer *w, const st_feature *f)
     if (rc != ST_OK)
         return rc;
     sqlite3_bind_blob(l->insert, 1, g->blob.data, (int)g->blob.len, SQLITE_STATIC);
+    if (has_env) {
+        memcpy(l->env, env, sizeof l->env);
+        l->has_env = 1;
+    }
     if (has_env && !l->has_extent) {
         memcpy(l->extent, env, sizeof l->extent);
         l->has_extent = 1;
@@ -572,6 +581,26 @@ static void bind_value(sqlite3_stmt *s, int p, st_field_type type, const char *v
         sqlite3_bind_text(s, p, v, -1, SQLITE_STATIC);
 }
 
+/* Remember the R-tree entry of the row just inserted: the tree is packed
+** and written in one go when the layer ends (io/gpkg_rtree.c). */
+static st_status keep_box(st_writer *w, gpkg_layer *l)
+{
+    if (l->nboxes == l->capboxes) {
+        size_t cap = l->capboxes ? l->capboxes * 2 : 1024;
+        st_gpkg_box *a = st_realloc(l->boxes, cap * sizeof *a);
+        if (!a)
+            return st_writer_fail(w, ST_ERR_NOMEM, "out of memory");
+        l->boxes = a;
+        l->capboxes = cap;
+    }
+    gpkg_writer *g = w->impl;
+    l->boxes[l->nboxes++] = (st_gpkg_box){
+        sqlite3_last_insert_rowid(g->db),
+        {st_gpkg_rtree_down(l->env[0]), st_gpkg_rtree_up(l->env[2]),
+         st_gpkg_rtree_down(l->env[1]), st_gpkg_rtree_up(l->env[3])}};
+    return ST_OK;
+}
+
 static st_status gpkg_write(st_writer *w, const st_feature *f)
 {
     gpkg_writer *g = w->impl;
@@ -581,6 +610,7 @@ static st_status gpkg_write(st_writer *w, const st_feature *f)
                               g->failed ? "the output is unusable after an earlier error"
                                         : "a feature was written outside a layer");
     int p = 1;
+    l->has_env = 0;
     if (l->has_geom) {
         st_status rc = bind_geometry(w, f);
         if (rc != ST_OK)
@@ -591,6 +621,8 @@ static st_status gpkg_write(st_writer *w, const st_feature *f)
         bind_value(l->insert, p + (int)i, l->types[i], st_feature_value(f, i));
     st_status rc = step_done(w, l->insert, "inserting a feature");
     sqlite3_clear_bindings(l->insert);
+    if (rc == ST_OK && l->has_env)
+        rc = keep_box(w, l);
     if (rc == ST_OK)
         l->written++;
     return rc;
@@ -616,17 +648,14 @@ static st_status store_extent(st_writer *w, gpkg_layer *l)
     return rc;
 }
 
-/* Statements of the R-tree index of a layer: the virtual table, its fill
-** from the rows written, the triggers of the gpkg_rtree_index extension
+/* Statements of the R-tree index of a layer: the virtual table (then
+** filled by st_gpkg_rtree_load with the boxes of the rows written), the triggers of the gpkg_rtree_index extension
 ** (GeoPackage 1.2, Annex F.3; validate_gpkg checks them as Req 75) and its
 ** gpkg_extensions row. In each, {R} stands for the quoted R-tree table,
 ** {T} the quoted feature table, {L} the table name as a string literal
 ** and {N} the R-tree name inside double quotes (trigger names). */
 static const char *const rtree_sql[] = {
     "CREATE VIRTUAL TABLE {R} USING rtree(id, minx, maxx, miny, maxy)",
-    "INSERT INTO {R} SELECT \"fid\", ST_MinX(\"geom\"), ST_MaxX(\"geom\"), "
-    "ST_MinY(\"geom\"), ST_MaxY(\"geom\") FROM {T} WHERE \"geom\" NOT NULL "
-    "AND NOT ST_IsEmpty(\"geom\") AND ST_MinX(\"geom\") NOT NULL",
     "CREATE TRIGGER \"{N}_insert\" AFTER INSERT ON {T} "
     "WHEN (new.\"geom\" NOT NULL AND NOT ST_IsEmpty(NEW.\"geom\")) BEGIN "
     "INSERT OR REPLACE INTO {R} VALUES (NEW.\"fid\", ST_MinX(NEW.\"geom\"), "
@@ -679,6 +708,16 @@ static st_status expand(st_buf *out, const char *t, const char *const subst[4])
     return rc;
 }
 
+static st_status fill_rtree(st_writer *w, gpkg_layer *l, const char *rtree)
+{
+    char err[512] = "";
+    st_status rc = st_gpkg_rtree_load(((gpkg_writer *)w->impl)->db, rtree, l->boxes, l->nboxes,
+                                      err, sizeof err);
+    if (rc == ST_ERR_NOMEM)
+        return st_writer_fail(w, rc, "out of memory");
+    return rc == ST_OK ? ST_OK : st_writer_fail(w, rc, "building the R-tree index: %s", err);
+}
+
 static st_status build_rtree(st_writer *w, gpkg_layer *l)
 {
     st_buf name, part[4], sql;
@@ -701,6 +740,8 @@ static st_status build_rtree(st_writer *w, gpkg_layer *l)
         rc = expand(&sql, rtree_sql[i], subst);
         if (rc == ST_OK)
             rc = exec(w, sql.data, "building the R-tree index");
+        if (rc == ST_OK && i == 0)
+            rc = fill_rtree(w, l, name.data);
     }
     st_buf_free(&name);
     st_buf_free(&sql);

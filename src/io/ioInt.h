@@ -104,6 +104,7 @@ char *st_path_stem(const char *path);
 #define ST_GPKG_MAX_BLOB ((size_t)256 << 20)
 
 struct st_geos;   /* stocktake/geomx.h */
+struct sqlite3;   /* sqlite3.h */
 
 /* The header of a GeoPackage geometry blob (OGC 12-128r, clause 2.1.3). */
 typedef struct st_gpkg_header {
@@ -148,6 +149,29 @@ st_status st_gpkg_blob_decode(struct st_geos *gx, const unsigned char *b,
 */
 st_status st_gpkg_blob_encode(const st_geom *g, int32_t srs_id, st_buf *out,
                               double env[4], int *has_env) ST_MUST_CHECK;
+
+/* ---- GeoPackage R-tree bulk load (io/gpkg_rtree.c) --------------------- */
+
+/* One feature's box in the R-tree: its fid and float bounds rounded
+** outward (st_gpkg_rtree_down for minima, _up for maxima), as SQLite's
+** rtree module stores them. */
+typedef struct st_gpkg_box {
+    int64_t id;
+    float b[4];             /* minx, maxx, miny, maxy */
+} st_gpkg_box;
+
+/* The largest float <= d, and the smallest float >= d. */
+float st_gpkg_rtree_down(double d);
+float st_gpkg_rtree_up(double d);
+
+/*
+** Fill the empty rtree virtual table 'name' (just created on 'db') with
+** boxes[0..n) (borrowed), packed sort-tile-recursive and written straight
+** into its _node, _rowid and _parent tables. ST_ERR_NOMEM, or ST_ERR_IO
+** with SQLite's message in err.
+*/
+st_status st_gpkg_rtree_load(struct sqlite3 *db, const char *name, st_gpkg_box *boxes,
+                             size_t n, char *err, size_t errlen) ST_MUST_CHECK;
 
 /* Append name as an SQL identifier in double quotes ("" inside). */
 st_status st_gpkg_quote_ident(st_buf *b, const char *name) ST_MUST_CHECK;

@@ -12,12 +12,23 @@
 ** Memory: every feature is held until the inventory is written, because
 **         the neighbour stage needs all layers together; pipeline/guard.c
 **         keeps that under the run's memory limit and refuses an output
-**         that would overwrite an input, before anything is read.
+**         that would overwrite an input, before anything is read. Each
+**         feature is made compact after reading (coordinates trimmed,
+**         attributes packed: docs/performance.md, memory per footprint).
+** Threads: the per-feature stages (footprint checks, neighbour scans,
+**         rules) run on a pool of opt->threads workers (pool.c) over fixed
+**         chunks of ST_POOL_CHUNK features; each chunk's findings, pairs and
+**         diagnostics are kept apart and merged in chunk order, so the
+**         outputs are the same for any number of threads. Reading, exact
+**         duplicates, the index and writing stay in the calling thread.
+** Timings: each stage's wall and CPU seconds and the peak memory so far go
+**         into st_run_result.timings (run --timings, bench/stages.sh).
 */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/resource.h>
 #include <time.h>
 
 #include "stocktake/audit.h"
@@ -46,6 +57,7 @@ typedef struct run_state {
     st_rules *rules;             /* NULL without -r */
     st_footprint_config fcfg;
     st_neighbours_config ncfg;
+    unsigned threads;            /* workers of the per-feature stages */
     st_memory_budget budget;     /* --max-memory and the estimate so far */
     char started[32];            /* UTC, ISO 8601 */
     st_report_dist dist;         /* kept buildings, filled while writing */
@@ -98,6 +110,20 @@ static char *unique_layer_name(run_state *s, size_t upto, const char *base)
     }
 }
 
+/* Give back what the geometry builder over-allocated (it doubles its
+** arrays): every feature is held until the write, so the slack of a
+** million coordinate arrays adds up (docs/performance.md, memory). */
+static void trim_geometry(st_geom *g)
+{
+    if (g->xy && g->cap_coords > g->ncoords && g->ncoords > 0) {
+        double *xy = st_realloc(g->xy, 2 * (size_t)g->ncoords * sizeof *xy);
+        if (xy) {
+            g->xy = xy;
+            g->cap_coords = g->ncoords;
+        }
+    }
+}
+
 /* GeoJSON types a field by its first value: a later "PB+2" in a field that
 ** began with 2 makes it text, so that the inventory does not declare a
 ** number column for it (GDAL reads such a value back as 0). 'first' is the
@@ -139,11 +165,14 @@ static st_status read_layer(run_state *s, size_t l)
             break;
         f->layer = (uint32_t)l;
         f->bid = (uint64_t)s->nfeatures + 1;
+        trim_geometry(&f->geom);
         /* A feature without an id of its own (a GeoJSON feature with no
         ** "id") is known by its 0-based position in the layer. */
         if (!f->source_id &&
             !(f->source_id = st_strdup_printf("%llu", (unsigned long long)f->index)))
             rc = ST_ERR_NOMEM;
+        if (rc == ST_OK)
+            rc = st_feature_pack_values(f);   /* one block: memory */
         if (rc == ST_OK)
             rc = st_run_guard_feature(&s->budget, f, st_reader_path(r), s->diags);
         if (rc == ST_OK)
@@ -190,35 +219,160 @@ static st_status layer_extent(run_state *s, uint32_t l, size_t first, size_t end
     return rc;
 }
 
-static st_status check_footprints(run_state *s)
+/* ---- chunks of work ------------------------------------------------------ */
+
+/* The features split into chunks of at most ST_POOL_CHUNK, never across a
+** layer boundary (the footprint check depends on the layer's extent). */
+typedef struct chunk {
+    size_t first, end;
+    uint32_t layer;
+} chunk;
+
+static chunk *make_chunks(run_state *s, size_t *n)
 {
-    const st_footprint_config *cfg = &s->fcfg;
-    st_footprint_checker *ck = NULL;
-    st_status rc = st_footprint_checker_new(&ck);
-    size_t i = 0;
-    for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++) {
-        size_t first = i, end = i;
-        while (end < s->nfeatures && s->features[end]->layer == l)
+    size_t cap = s->nfeatures / ST_POOL_CHUNK + s->res->nlayers + 1;
+    chunk *c = st_malloc(cap * sizeof *c);
+    *n = 0;
+    if (!c)
+        return NULL;
+    for (size_t i = 0; i < s->nfeatures;) {
+        uint32_t layer = s->features[i]->layer;
+        size_t end = i;
+        while (end < s->nfeatures && end - i < ST_POOL_CHUNK && s->features[end]->layer == layer)
             end++;
-        st_footprint_extent ext;
-        rc = layer_extent(s, (uint32_t)l, first, end, &ext);
-        if (rc != ST_OK)
-            break;
-        st_footprint_checker_set_extent(ck, &ext);
-        for (i = first; rc == ST_OK && i < end; i++) {
-            rc = st_footprint_check(ck, cfg, s->features[i], &s->findings);
-            if ((i & 0x3FFF) == 0)
-                progress(s, "footprints", (long long)i, (long long)s->nfeatures);
-        }
+        c[(*n)++] = (chunk){i, end, layer};
         i = end;
     }
-    st_footprint_checker_free(ck);
+    return c;
+}
+
+/* Per-chunk findings, then moved into the run's list in chunk order. */
+static st_findings *new_chunk_findings(size_t n)
+{
+    st_findings *f = st_calloc(n ? n : 1, sizeof *f);
+    for (size_t i = 0; f && i < n; i++)
+        st_findings_init(&f[i]);
+    return f;
+}
+
+static st_status merge_chunk_findings(run_state *s, st_findings *f, size_t n, st_status rc)
+{
+    for (size_t i = 0; f && i < n; i++) {
+        if (rc == ST_OK)
+            rc = st_findings_move(&s->findings, &f[i]);
+        st_findings_free(&f[i]);
+    }
+    st_free(f);
+    return rc;
+}
+
+/* Diagnostics a worker gathered, added to the run's in chunk order. */
+static void merge_chunk_diags(run_state *s, st_diags *d, size_t n)
+{
+    for (size_t i = 0; d && i < n; i++) {
+        for (size_t k = 0; k < d[i].count; k++) {
+            const st_diag *g = &d[i].items[k];
+            st_loc loc = {g->file, g->line, g->col, g->len, g->feature, g->offset};
+            st_diags_add(s->diags, g->severity, g->code, &loc, "%s", g->message);
+        }
+        st_diags_free(&d[i]);
+    }
+    st_free(d);
+}
+
+/* Progress from the calling thread (worker 0) only. */
+static void chunk_progress(run_state *s, unsigned worker, const char *stage, size_t done)
+{
+    if (worker == 0)
+        progress(s, stage, (long long)done, (long long)s->nfeatures);
+}
+
+/* ---- footprint stage ---------------------------------------------------- */
+
+typedef struct fp_job {
+    run_state *s;
+    const chunk *chunks;
+    st_footprint_checker **ck;     /* one per worker */
+    const st_footprint_extent *ext;/* one per layer */
+    st_findings *out;              /* one per chunk */
+} fp_job;
+
+static st_status fp_task(void *ctx, unsigned worker, size_t c)
+{
+    fp_job *j = ctx;
+    const chunk *k = &j->chunks[c];
+    st_footprint_checker *ck = j->ck[worker];
+    st_footprint_checker_set_extent(ck, &j->ext[k->layer]);
+    st_status rc = ST_OK;
+    for (size_t i = k->first; rc == ST_OK && i < k->end; i++)
+        rc = st_footprint_check(ck, &j->s->fcfg, j->s->features[i], &j->out[c]);
+    chunk_progress(j->s, worker, "footprints", k->end);
+    return rc;
+}
+
+static st_status layer_extents(run_state *s, st_footprint_extent *ext)
+{
+    st_status rc = ST_OK;
+    size_t i = 0;
+    for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++) {
+        size_t end = i;
+        while (end < s->nfeatures && s->features[end]->layer == l)
+            end++;
+        rc = layer_extent(s, (uint32_t)l, i, end, &ext[l]);
+        i = end;
+    }
+    return rc;
+}
+
+static st_status check_footprints(run_state *s)
+{
+    size_t nchunks = 0;
+    chunk *chunks = make_chunks(s, &nchunks);
+    fp_job j = {s, chunks, st_calloc(s->threads, sizeof *j.ck),
+                st_calloc(s->res->nlayers + 1, sizeof *j.ext), new_chunk_findings(nchunks)};
+    st_status rc = chunks && j.ck && j.ext && j.out ? ST_OK : ST_ERR_NOMEM;
+    for (unsigned w = 0; rc == ST_OK && w < s->threads; w++)
+        rc = st_footprint_checker_new(&j.ck[w]);
+    if (rc == ST_OK)
+        rc = layer_extents(s, (st_footprint_extent *)j.ext);
+    if (rc == ST_OK)
+        rc = st_pool_run(s->threads, nchunks, fp_task, &j);
+    rc = merge_chunk_findings(s, j.out, nchunks, rc);
+    for (unsigned w = 0; j.ck && w < s->threads; w++)
+        st_footprint_checker_free(j.ck[w]);
+    st_free(j.ck);
+    st_free((void *)j.ext);
+    st_free(chunks);
     if (rc != ST_OK)
         st_diags_add(s->diags, ST_SEV_ERROR, rc, NULL, "footprint stage failed: %s",
                      st_status_name(rc));
     return rc;
 }
 
+/* ---- neighbour stage ------------------------------------------------------ */
+
+typedef struct nb_job {
+    run_state *s;
+    const st_neighbours *nb;
+    size_t count;                  /* indexed footprints */
+    st_geos **gx;                  /* one per worker */
+    st_neighbours_pairs **pairs;   /* one per chunk */
+    st_diags *diags;               /* one per chunk */
+} nb_job;
+
+static st_status nb_task(void *ctx, unsigned worker, size_t c)
+{
+    nb_job *j = ctx;
+    size_t begin = c * ST_POOL_CHUNK;
+    size_t end = begin + ST_POOL_CHUNK < j->count ? begin + ST_POOL_CHUNK : j->count;
+    st_status rc = st_neighbours_scan(j->nb, j->gx[worker], begin, end, &j->diags[c],
+                                      &j->pairs[c]);
+    chunk_progress(j->s, worker, "neighbours", end);
+    return rc;
+}
+
+/* begin (exact duplicates, index) in this thread, scans of chunks of the
+** index on the pool, finish (near duplicates, overlaps) in this thread. */
 static st_status compare_neighbours(run_state *s)
 {
     const char **names = st_calloc(s->res->nlayers, sizeof *names);
@@ -228,7 +382,33 @@ static st_status compare_neighbours(run_state *s)
         names[l] = s->res->layers[l].name;
     st_neighbours_input in = {s->features, s->nfeatures, names, (uint32_t)s->res->nlayers};
     progress(s, "neighbours", 0, (long long)s->nfeatures);
-    st_status rc = st_neighbours_run(&s->ncfg, &in, s->gx, &s->findings, s->diags);
+    st_neighbours *nb = NULL;
+    st_status rc = st_neighbours_begin(&s->ncfg, &in, s->gx, &s->findings, s->diags, &nb);
+    size_t count = rc == ST_OK ? st_neighbours_count(nb) : 0;
+    size_t nchunks = (count + ST_POOL_CHUNK - 1) / ST_POOL_CHUNK;
+    nb_job j = {s, nb, count, st_calloc(s->threads, sizeof *j.gx),
+                st_calloc(nchunks + 1, sizeof *j.pairs), st_calloc(nchunks + 1, sizeof *j.diags)};
+    if (rc == ST_OK && (!j.gx || !j.pairs || !j.diags))
+        rc = ST_ERR_NOMEM;
+    for (size_t c = 0; j.diags && c < nchunks; c++)
+        st_diags_init(&j.diags[c]);
+    if (rc == ST_OK)
+        j.gx[0] = s->gx;   /* the calling thread's own context */
+    for (unsigned w = 1; rc == ST_OK && w < s->threads; w++)
+        if (!(j.gx[w] = st_geos_new()))
+            rc = ST_ERR_NOMEM;
+    if (rc == ST_OK)
+        rc = st_pool_run(s->threads, nchunks, nb_task, &j);
+    merge_chunk_diags(s, j.diags, j.diags ? nchunks : 0);
+    if (rc == ST_OK)
+        rc = st_neighbours_finish(nb, j.pairs, nchunks, &s->findings, s->diags);
+    for (size_t c = 0; j.pairs && c < nchunks; c++)
+        st_neighbours_pairs_free(j.pairs[c]);
+    for (unsigned w = 1; j.gx && w < s->threads; w++)
+        st_geos_free(j.gx[w]);
+    st_free(j.gx);
+    st_free(j.pairs);
+    st_neighbours_free(nb);
     st_free(names);
     return rc;
 }
@@ -258,28 +438,58 @@ static st_status keep_unmapped(run_state *s, const st_unmapped *u)
     return rc;
 }
 
-/* map -> derive -> check on every kept building. */
+/* ---- rules stage ------------------------------------------------------- */
+
+typedef struct rules_job {
+    run_state *s;
+    const chunk *chunks;
+    st_rules_ctx **ctx;            /* one per worker */
+    st_findings *out;              /* one per chunk */
+} rules_job;
+
+static st_status rules_task(void *ctx, unsigned worker, size_t c)
+{
+    rules_job *j = ctx;
+    const chunk *k = &j->chunks[c];
+    st_rules_ctx *rc_ctx = j->ctx[worker];
+    st_rules_ctx_reset_layer(rc_ctx);
+    st_status rc = ST_OK;
+    for (size_t i = k->first; rc == ST_OK && i < k->end; i++) {
+        st_feature *f = j->s->features[i];
+        if (f->status == ST_STATUS_OK || f->status == ST_STATUS_REPAIRED)
+            rc = st_rules_apply(rc_ctx, f, &j->s->fields[f->layer], &j->out[c]);
+    }
+    chunk_progress(j->s, worker, "rules", k->end);
+    return rc;
+}
+
+/* map -> derive -> check on every kept building; each worker counts its
+** unmapped values, and the counts are added up (a sum: any order). */
 static st_status apply_rules(run_state *s)
 {
     if (!s->rules)
         return ST_OK;
-    st_rules_ctx *ctx = NULL;
-    st_status rc = st_rules_ctx_new(s->rules, &ctx);
-    for (size_t i = 0; rc == ST_OK && i < s->nfeatures; i++) {
-        st_feature *f = s->features[i];
-        if (f->status != ST_STATUS_OK && f->status != ST_STATUS_REPAIRED)
-            continue;
-        rc = st_rules_apply(ctx, f, &s->fields[f->layer], &s->findings);
-        if ((i & 0x3FFF) == 0)
-            progress(s, "rules", (long long)i, (long long)s->nfeatures);
-    }
+    size_t nchunks = 0;
+    chunk *chunks = make_chunks(s, &nchunks);
+    rules_job j = {s, chunks, st_calloc(s->threads, sizeof *j.ctx), new_chunk_findings(nchunks)};
+    st_status rc = chunks && j.ctx && j.out ? ST_OK : ST_ERR_NOMEM;
+    for (unsigned w = 0; rc == ST_OK && w < s->threads; w++)
+        rc = st_rules_ctx_new(s->rules, &j.ctx[w]);
     if (rc == ST_OK)
-        rc = keep_unmapped(s, st_rules_ctx_unmapped(ctx));
+        rc = st_pool_run(s->threads, nchunks, rules_task, &j);
+    rc = merge_chunk_findings(s, j.out, nchunks, rc);
+    for (unsigned w = 1; rc == ST_OK && w < s->threads; w++)
+        rc = st_unmapped_merge(st_rules_ctx_unmapped(j.ctx[0]), st_rules_ctx_unmapped(j.ctx[w]));
+    if (rc == ST_OK)
+        rc = keep_unmapped(s, st_rules_ctx_unmapped(j.ctx[0]));
     if (rc == ST_OK)
         rc = st_unmapped_new(&s->unmapped);
     if (rc == ST_OK)
-        rc = st_unmapped_merge(s->unmapped, st_rules_ctx_unmapped(ctx));
-    st_rules_ctx_free(ctx);
+        rc = st_unmapped_merge(s->unmapped, st_rules_ctx_unmapped(j.ctx[0]));
+    for (unsigned w = 0; j.ctx && w < s->threads; w++)
+        st_rules_ctx_free(j.ctx[w]);
+    st_free(j.ctx);
+    st_free(chunks);
     return rc;
 }
 
@@ -294,7 +504,7 @@ static st_status place_buildings(run_state *s)
         return ST_OK;
     progress(s, "place", 0, (long long)s->nfeatures);
     st_place_stats stats;
-    return st_place_features(s->districts, s->features, s->nfeatures, s->opt->threads,
+    return st_place_features(s->districts, s->features, s->nfeatures, s->threads,
                              ST_SEV_WARNING, &s->findings, s->diags, &stats);
 }
 
@@ -768,6 +978,39 @@ static st_status load_rules(run_state *s)
     return rc;
 }
 
+/* ---- timings (run --timings, bench) -------------------------------------- */
+
+typedef struct clock_pair {
+    double wall, cpu;
+} clock_pair;
+
+static clock_pair clock_now(void)
+{
+    struct timespec w = {0, 0}, c = {0, 0};
+    clock_gettime(CLOCK_MONOTONIC, &w);
+    clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &c);
+    return (clock_pair){(double)w.tv_sec + (double)w.tv_nsec * 1e-9,
+                        (double)c.tv_sec + (double)c.tv_nsec * 1e-9};
+}
+
+static long peak_rss_kb(void)
+{
+    struct rusage u;
+    return getrusage(RUSAGE_SELF, &u) == 0 ? u.ru_maxrss : 0;   /* kB on Linux */
+}
+
+/* Record the stage that began at 'since'; returns the time now, where the
+** next stage begins. */
+static clock_pair stage_done(run_state *s, const char *stage, clock_pair since, uint64_t items)
+{
+    clock_pair t = clock_now();
+    st_run_result *r = s->res;
+    if (r->ntimings < ST_RUN_MAX_TIMINGS)
+        r->timings[r->ntimings++] = (st_run_timing){stage, t.wall - since.wall, t.cpu - since.cpu,
+                                                    items, peak_rss_kb()};
+    return t;
+}
+
 /* Districts, reference counts and defaults tables: all read before the
 ** footprints, so a bad one stops the run early. */
 static st_status load_places(run_state *s)
@@ -786,24 +1029,16 @@ static st_status load_places(run_state *s)
     return rc;
 }
 
-static double now_seconds(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + ts.tv_nsec / 1e9;
-}
-
-/* Run one stage unless an earlier one failed, and time it. */
+/* Run one stage unless an earlier one failed, and time it (wall, CPU of
+** all threads, peak memory so far). */
 static st_status timed(run_state *s, st_status rc, const char *stage,
                        st_status (*fn)(run_state *))
 {
     if (rc != ST_OK)
         return rc;
-    double t0 = now_seconds();
+    clock_pair t0 = clock_now();
     rc = fn(s);
-    st_run_result *r = s->res;
-    if (r->ntimes < ST_RUN_MAX_TIMES)
-        r->times[r->ntimes++] = (st_run_time){stage, now_seconds() - t0};
+    stage_done(s, stage, t0, s->nfeatures);
     return rc;
 }
 
@@ -831,6 +1066,7 @@ static st_status outputs_and_summary(run_state *s)
 
 static st_status run_stages(run_state *s)
 {
+    clock_pair start = clock_now();
     st_status rc = timed(s, ST_OK, "rules", load_rules);
     rc = timed(s, rc, "districts", load_places);
     rc = timed(s, rc, "read", read_layers);
@@ -843,7 +1079,10 @@ static st_status run_stages(run_state *s)
     rc = timed(s, rc, "audit", run_audit);
     rc = timed(s, rc, "gate", decide_gate);
     rc = timed(s, rc, "summary", outputs_and_summary);
-    return timed(s, rc, "write", write_inventory);
+    rc = timed(s, rc, "write", write_inventory);
+    if (rc == ST_OK)
+        stage_done(s, "total", start, s->nfeatures);
+    return rc;
 }
 
 st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_result **out)
@@ -856,6 +1095,7 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     memset(&s, 0, sizeof s);
     s.opt = opt;
     s.diags = diags;
+    s.threads = st_pool_threads(opt->threads);
     st_now_iso8601(s.started);
     st_findings_init(&s.findings);
     s.res = st_calloc(1, sizeof *s.res);

@@ -1,0 +1,251 @@
+/*
+** tests/unit/test_gpkg_rtree.c -- the GeoPackage writer's bulk-loaded
+** R-tree (io/gpkg_rtree.c), checked by SQLite's own rtree module:
+**   - rtreecheck() (SQLite's ext/rtree integrity check: node sizes, every
+**     child box inside its parent's, _rowid and _parent consistent) says
+**     'ok' for trees of one, two and three levels;
+**   - window queries through the rtree module return exactly the features
+**     whose envelopes meet the window, counted by brute force here;
+**   - the module can go on inserting into the packed tree (splits) and
+**     deleting from it, and rtreecheck() still says 'ok';
+**   - the outward rounding to float32 contains every double.
+*/
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <math.h>
+#include <sqlite3.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "stocktake/core.h"
+#include "stocktake/feature.h"
+#include "stocktake/io.h"
+#include "io/ioInt.h"
+
+/* A deterministic generator (Knuth's MMIX LCG), so failures replay. */
+static double next_unit(uint64_t *s)
+{
+    *s = *s * 6364136223846793005ULL + 1442695040888963407ULL;
+    return (double)(*s >> 11) / 9007199254740992.0;
+}
+
+typedef struct square {
+    double x, y, size;
+    int has_geom;
+} square;
+
+static st_feature *feature_of(const square *q, uint64_t i)
+{
+    st_feature *f = st_feature_new();
+    assert_non_null(f);
+    f->index = i;
+    if (!q->has_geom)
+        return f;   /* ST_GEOM_NULL */
+    f->geom.type = ST_GEOM_POLYGON;
+    assert_int_equal(st_geom_begin_part(&f->geom), ST_OK);
+    assert_int_equal(st_geom_begin_ring(&f->geom), ST_OK);
+    double c[5][2] = {{q->x, q->y}, {q->x + q->size, q->y}, {q->x + q->size, q->y + q->size},
+                      {q->x, q->y + q->size}, {q->x, q->y}};
+    for (int k = 0; k < 5; k++)
+        assert_int_equal(st_geom_add_xy(&f->geom, c[k][0], c[k][1]), ST_OK);
+    return f;
+}
+
+/* Write n squares (every 50th without a geometry; none at all with
+** 'none') into 'path'. */
+static square *write_squares(const char *path, size_t n, uint64_t seed, int none)
+{
+    square *qs = calloc(n, sizeof *qs);
+    assert_non_null(qs);
+    st_diags d;
+    st_diags_init(&d);
+    st_writer *w = NULL;
+    assert_int_equal(st_writer_open(path, &d, &w), ST_OK);
+    st_fields fl;
+    st_fields_init(&fl);
+    assert_int_equal(st_writer_begin_layer(w, "squares", &fl, ST_GEOM_POLYGON), ST_OK);
+    for (size_t i = 0; i < n; i++) {
+        qs[i].x = -126.3 + 0.05 * next_unit(&seed);
+        qs[i].y = -47.95 + 0.04 * next_unit(&seed);
+        qs[i].size = 1e-5 + 2e-4 * next_unit(&seed);
+        qs[i].has_geom = !none && i % 50 != 7;
+        st_feature *f = feature_of(&qs[i], i);
+        assert_int_equal(st_writer_write(w, f), ST_OK);
+        st_feature_free(f);
+    }
+    assert_int_equal(st_writer_end_layer(w), ST_OK);
+    assert_int_equal(st_writer_commit(w), ST_OK);
+    st_writer_close(w);
+    st_fields_free(&fl);
+    assert_int_equal(d.errors, 0);
+    st_diags_free(&d);
+    return qs;
+}
+
+static void expect_rtreecheck_ok(sqlite3 *db)
+{
+    sqlite3_stmt *s;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT rtreecheck('rtree_squares_geom')", -1, &s,
+                                        NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_step(s), SQLITE_ROW);
+    assert_string_equal((const char *)sqlite3_column_text(s, 0), "ok");
+    sqlite3_finalize(s);
+}
+
+static long long scalar(sqlite3 *db, const char *sql)
+{
+    sqlite3_stmt *s;
+    assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &s, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_step(s), SQLITE_ROW);
+    long long v = sqlite3_column_int64(s, 0);
+    sqlite3_finalize(s);
+    return v;
+}
+
+/* Window queries through the rtree module against brute force: feature i
+** has fid i + 1 (the writer's AUTOINCREMENT from an empty table). */
+static void expect_queries_match(sqlite3 *db, const square *qs, size_t n, uint64_t seed)
+{
+    sqlite3_stmt *s;
+    assert_int_equal(sqlite3_prepare_v2(db,
+        "SELECT id FROM rtree_squares_geom WHERE maxx >= ?1 AND minx <= ?2 "
+        "AND maxy >= ?3 AND miny <= ?4 ORDER BY id", -1, &s, NULL), SQLITE_OK);
+    unsigned char *hit = calloc(n, 1);
+    assert_non_null(hit);
+    for (int k = 0; k < 200; k++) {
+        double x0 = -126.3 + 0.05 * next_unit(&seed), y0 = -47.95 + 0.04 * next_unit(&seed);
+        double w = 0.004 * next_unit(&seed), h = 0.004 * next_unit(&seed);
+        /* the module compares the stored float32 bounds: so does the
+        ** brute force below */
+        memset(hit, 0, n);
+        sqlite3_bind_double(s, 1, x0);
+        sqlite3_bind_double(s, 2, x0 + w);
+        sqlite3_bind_double(s, 3, y0);
+        sqlite3_bind_double(s, 4, y0 + h);
+        size_t got = 0;
+        while (sqlite3_step(s) == SQLITE_ROW) {
+            long long id = sqlite3_column_int64(s, 0);
+            assert_true(id >= 1 && (size_t)id <= n);
+            hit[id - 1] = 1;
+            got++;
+        }
+        sqlite3_reset(s);
+        size_t want = 0;
+        for (size_t i = 0; i < n; i++) {
+            if (!qs[i].has_geom)
+                continue;
+            float minx = st_gpkg_rtree_down(qs[i].x), maxx = st_gpkg_rtree_up(qs[i].x + qs[i].size);
+            float miny = st_gpkg_rtree_down(qs[i].y), maxy = st_gpkg_rtree_up(qs[i].y + qs[i].size);
+            int meets = maxx >= x0 && minx <= x0 + w && maxy >= y0 && miny <= y0 + h;
+            want += (size_t)meets;
+            if (meets != hit[i])
+                fail_msg("window %d: feature %zu %s", k, i, meets ? "missed" : "extra");
+        }
+        assert_int_equal(got, want);
+    }
+    free(hit);
+    sqlite3_finalize(s);
+}
+
+static void check_size(size_t n, int levels)
+{
+    char path[] = "/tmp/st_rtree_XXXXXX.gpkg";
+    int fd = mkstemps(path, 5);
+    assert_true(fd >= 0);
+    close(fd);
+    unlink(path);
+    square *qs = write_squares(path, n, 42 + n, 0);
+    sqlite3 *db;
+    assert_int_equal(sqlite3_open(path, &db), SQLITE_OK);
+    expect_rtreecheck_ok(db);
+    size_t with_geom = 0;
+    for (size_t i = 0; i < n; i++)
+        with_geom += (size_t)qs[i].has_geom;
+    assert_int_equal(scalar(db, "SELECT count(*) FROM rtree_squares_geom"), (long long)with_geom);
+    assert_int_equal(scalar(db, "SELECT count(*) FROM rtree_squares_geom_rowid"),
+                     (long long)with_geom);
+    /* depth of the tree: the root's first two bytes (big-endian) */
+    assert_int_equal(scalar(db, "SELECT (instr('0123456789ABCDEF', substr(hex(data), 3, 1)) - 1) "
+                                "* 16 + instr('0123456789ABCDEF', substr(hex(data), 4, 1)) - 1 "
+                                "FROM rtree_squares_geom_node WHERE nodeno = 1"),
+                     levels - 1);
+    expect_queries_match(db, qs, n, 7 + n);
+    /* The module goes on: insert (with splits) and delete in the packed tree. */
+    assert_int_equal(sqlite3_exec(db,
+        "WITH RECURSIVE k(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM k WHERE i < 700) "
+        "INSERT INTO rtree_squares_geom SELECT 1000000 + i, -126.3 + i * 0.00007, "
+        "-126.3 + i * 0.00007 + 0.0001, -47.95, -47.9499 FROM k;"
+        "DELETE FROM rtree_squares_geom WHERE id % 3 = 0;", NULL, NULL, NULL), SQLITE_OK);
+    expect_rtreecheck_ok(db);
+    sqlite3_close(db);
+    unlink(path);
+    free(qs);
+}
+
+static void test_one_leaf(void **state)
+{
+    (void)state;
+    check_size(30, 1);          /* fewer than a node holds: the root is a leaf */
+}
+
+static void test_two_levels(void **state)
+{
+    (void)state;
+    check_size(1000, 2);
+}
+
+static void test_three_levels(void **state)
+{
+    (void)state;
+    check_size(6000, 3);        /* more than 51 * 51 boxes: three levels */
+}
+
+static void test_empty_layer(void **state)
+{
+    (void)state;
+    char path[] = "/tmp/st_rtree_XXXXXX.gpkg";
+    int fd = mkstemps(path, 5);
+    assert_true(fd >= 0);
+    close(fd);
+    unlink(path);
+    free(write_squares(path, 3, 7, 1));   /* no feature has a geometry */
+    sqlite3 *db;
+    assert_int_equal(sqlite3_open(path, &db), SQLITE_OK);
+    expect_rtreecheck_ok(db);
+    assert_int_equal(scalar(db, "SELECT count(*) FROM rtree_squares_geom"), 0);
+    assert_int_equal(scalar(db, "SELECT count(*) FROM squares"), 3);
+    sqlite3_close(db);
+    unlink(path);
+}
+
+static void test_rounding_contains(void **state)
+{
+    (void)state;
+    uint64_t seed = 3;
+    for (int i = 0; i < 100000; i++) {
+        double d = (next_unit(&seed) - 0.5) * 360.0;
+        assert_true((double)st_gpkg_rtree_down(d) <= d);
+        assert_true((double)st_gpkg_rtree_up(d) >= d);
+        assert_true(fabs((double)st_gpkg_rtree_up(d) - d) <= fabs(d) * 1.2e-7);
+    }
+    assert_true(st_gpkg_rtree_down(0.5) == 0.5f);   /* exact floats stay */
+    assert_true(st_gpkg_rtree_up(-0.25) == -0.25f);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_one_leaf),
+        cmocka_unit_test(test_two_levels),
+        cmocka_unit_test(test_three_levels),
+        cmocka_unit_test(test_empty_layer),
+        cmocka_unit_test(test_rounding_contains),
+    };
+    return cmocka_run_group_tests_name("gpkg_rtree", tests, NULL, NULL);
+}
