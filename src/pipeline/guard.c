@@ -11,16 +11,19 @@
 **          passes the limit.
 **
 ** Memory. A run holds every feature until it writes (the neighbour stage
-** compares all layers together), so its peak grows with the input. The
-** estimate, fitted on the peak resident size (GNU time) of runs over 5 and
-** 20 copies of the real extracts (docs/reliability.md), errs high:
-**   before reading, from file sizes: 64 MiB for the libraries, plus
-**     GeoJSON   2 x the file (measured slope 1.4),
+** compares all layers together), so its peak grows with the input. Two
+** estimates, fitted on the peak resident size (GNU time) of runs over 5 and
+** 20 copies of the real extracts (docs/reliability.md):
+**   before reading, from file sizes, to refuse at once what is clearly too
+**   big: 64 MiB for the libraries, plus
+**     GeoJSON   2 x the file (measured slope 1.4 with many attributes,
+**               3.3 for the bare benchmark town: this one can be low),
 **     Shapefile 6 x (.shp + .dbf) (measured 4.6),
 **     GeoPackage 5 x the file (measured 4.0);
-**   while reading, per feature: 768 bytes, 64 per vertex, 2 per byte of
-**     attribute text and 32 per attribute (measured 1.0 to 2.2 KiB a
-**     feature where this gives 1.5 to 3.6).
+**   while reading, per feature, the one that holds the bound and errs
+**     high: 768 bytes, 64 per vertex, 2 per byte of attribute text and 32
+**     per attribute (measured 0.95 to 2.2 KiB a feature where this gives
+**     1.1 to 3.6).
 ** The default limit is 75 % of physical memory or 8 GiB, whichever is less;
 ** --max-memory sets another.
 */
