@@ -16,11 +16,12 @@
 **         feature is made compact after reading (coordinates trimmed,
 **         attributes packed: docs/performance.md, memory per footprint).
 ** Threads: the per-feature stages (footprint checks, neighbour scans,
-**         rules) run on a pool of opt->threads workers (pool.c) over fixed
+**         rules, defaults) run on a pool of opt->threads workers (pool.c) over fixed
 **         chunks of ST_POOL_CHUNK features; each chunk's findings, pairs and
 **         diagnostics are kept apart and merged in chunk order, so the
 **         outputs are the same for any number of threads. Reading, exact
-**         duplicates, the index and writing stay in the calling thread.
+**         duplicates, the index, the audit and writing stay in the calling
+**         thread; placement has threads of its own (place.h).
 ** Timings: each stage's wall and CPU seconds and the peak memory so far go
 **         into st_run_result.timings (run --timings, bench/stages.sh).
 */
