@@ -204,12 +204,15 @@ int st_cmd_run(int argc, char **argv)
     a.opt.progress_ud = &p;
     st_buf cmd;
     st_buf_init(&cmd, 1 << 16);
-    /* -j is left out of the recorded command: it changes no output. */
+    /* -j and --timings are left out of the recorded command: they change
+    ** no output, and the outputs of any -j are to be byte-identical. */
     for (int i = 0; i < argc; i++) {
         if ((!strcmp(argv[i], "-j") || !strcmp(argv[i], "--threads")) && i + 1 < argc) {
             i++;
             continue;
         }
+        if (!strcmp(argv[i], "--timings"))
+            continue;
         if (st_buf_printf(&cmd, "%s%s", i ? " " : "stocktake ", argv[i]) != ST_OK)
             break;
     }

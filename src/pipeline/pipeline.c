@@ -16,11 +16,12 @@
 **         feature is made compact after reading (coordinates trimmed,
 **         attributes packed: docs/performance.md, memory per footprint).
 ** Threads: the per-feature stages (footprint checks, neighbour scans,
-**         rules) run on a pool of opt->threads workers (pool.c) over fixed
+**         rules, defaults) run on a pool of opt->threads workers (pool.c) over fixed
 **         chunks of ST_POOL_CHUNK features; each chunk's findings, pairs and
 **         diagnostics are kept apart and merged in chunk order, so the
 **         outputs are the same for any number of threads. Reading, exact
-**         duplicates, the index and writing stay in the calling thread.
+**         duplicates, the index, the audit and writing stay in the calling
+**         thread; placement has threads of its own (place.h).
 ** Timings: each stage's wall and CPU seconds and the peak memory so far go
 **         into st_run_result.timings (run --timings, bench/stages.sh).
 */
@@ -524,20 +525,56 @@ static st_status prepare_defaults(run_state *s)
     return rc;
 }
 
-/* Learn from the observed values, then fill what is still unknown. */
+typedef struct defaults_job {
+    run_state *s;
+    const chunk *chunks;
+    st_rules_ctx **ctx;            /* one per worker */
+    size_t skip;                   /* the building already filled */
+} defaults_job;
+
+static st_status defaults_task(void *ctx, unsigned worker, size_t c)
+{
+    defaults_job *j = ctx;
+    const chunk *k = &j->chunks[c];
+    st_status rc = ST_OK;
+    for (size_t i = k->first; rc == ST_OK && i < k->end; i++)
+        if (i != j->skip && is_kept(j->s->features[i]))
+            rc = st_defaults_apply(j->s->defaults, j->ctx[worker], j->s->features[i],
+                                   j->s->opt->fill, j->s->opt->seed);
+    chunk_progress(j->s, worker, "defaults", k->end);
+    return rc;
+}
+
+/* Learn from the observed values, then fill what is still unknown. The
+** first building is filled here, which makes the defaults build their
+** tables (they do it on first use); after that st_defaults_apply only
+** reads them, and each building's values depend on that building alone
+** (the draw hashes seed, bid and field), so the rest go to the pool. */
 static st_status fill_defaults(run_state *s)
 {
     if (!s->rules)
         return ST_OK;
     progress(s, "defaults", 0, (long long)s->nfeatures);
-    st_status rc = st_defaults_learn(s->defaults, s->features, s->nfeatures);
-    st_rules_ctx *ctx = NULL;
+    size_t nchunks = 0;
+    chunk *chunks = make_chunks(s, &nchunks);
+    defaults_job j = {s, chunks, st_calloc(s->threads, sizeof *j.ctx), SIZE_MAX};
+    st_status rc = chunks && j.ctx ? ST_OK : ST_ERR_NOMEM;
     if (rc == ST_OK)
-        rc = st_rules_ctx_new(s->rules, &ctx);
-    for (size_t i = 0; rc == ST_OK && i < s->nfeatures; i++)
-        if (is_kept(s->features[i]))
-            rc = st_defaults_apply(s->defaults, ctx, s->features[i], s->opt->fill, s->opt->seed);
-    st_rules_ctx_free(ctx);
+        rc = st_defaults_learn(s->defaults, s->features, s->nfeatures);
+    for (unsigned w = 0; rc == ST_OK && w < s->threads; w++)
+        rc = st_rules_ctx_new(s->rules, &j.ctx[w]);
+    for (size_t i = 0; rc == ST_OK && i < s->nfeatures && j.skip == SIZE_MAX; i++)
+        if (is_kept(s->features[i])) {
+            rc = st_defaults_apply(s->defaults, j.ctx[0], s->features[i], s->opt->fill,
+                                   s->opt->seed);
+            j.skip = i;
+        }
+    if (rc == ST_OK && j.skip != SIZE_MAX)
+        rc = st_pool_run(s->threads, nchunks, defaults_task, &j);
+    for (unsigned w = 0; j.ctx && w < s->threads; w++)
+        st_rules_ctx_free(j.ctx[w]);
+    st_free(j.ctx);
+    st_free(chunks);
     return rc;
 }
 
