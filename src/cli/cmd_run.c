@@ -20,9 +20,10 @@ void st_help_run(FILE *out)
             "layer together and write the inventory.\n"
             "\n"
             "  -o, --output OUT     OUT.gpkg (layers buildings, set_aside, findings,\n"
-            "                       run_info, unmapped) or OUT.geojson/.geojsonl/.csv/\n"
-            "                       .shp (one file per layer: OUT.set_aside.EXT,\n"
-            "                       OUT.findings.EXT, OUT.run_info.csv, OUT.unmapped.csv)\n"
+            "                       run_info, unmapped) or OUT.geojson/.geojsonl/.csv\n"
+            "                       (one file per layer: OUT.set_aside.EXT,\n"
+            "                       OUT.findings.EXT, OUT.run_info.csv, OUT.unmapped.csv);\n"
+            "                       for a Shapefile, convert OUT.gpkg:buildings after\n"
             "  -r, --rules FILE...  rule files (schema, footprint thresholds, map,\n"
             "                       derive, check, defaults, gate); see docs/rules.md\n"
             "  --districts FILE     district polygons (any readable layer); each building\n"
@@ -163,6 +164,13 @@ static int parse_args(int argc, char **argv, run_args *a)
     }
     if (!a->opt.output)
         return st_cli_usage_error("run", "say where to write the inventory with -o OUT");
+    /* set_aside holds null, point and polygon geometries alike, which one
+    ** Shapefile cannot: refuse before reading anything. */
+    if (st_str_ends_with_ci(a->opt.output, ".shp"))
+        return st_cli_usage_error("run", "a Shapefile holds one geometry type, but the "
+                                  "inventory's set_aside layer mixes them: write .gpkg, "
+                                  ".geojson, .geojsonl or .csv, then 'stocktake convert "
+                                  "OUT.gpkg:buildings OUT.shp'");
     if (!a->opt.ninputs)
         return st_cli_usage_error("run", "give at least one input layer");
     if ((a->opt.district_key || a->opt.region_key || a->opt.reference) && !a->opt.districts)

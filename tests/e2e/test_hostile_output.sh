@@ -31,11 +31,14 @@ with open(sys.argv[1], "w") as out:
                   % (i, i, x, y, x + 5e-5, y, x + 5e-5, y + 5e-5, x, y + 5e-5, x, y))
 PY
 FORMATS="gpkg geojson geojsonl shp csv"
+# run refuses a Shapefile inventory up front (its set_aside layer mixes
+# geometry types); for .shp the run cases expect that message instead.
+runpat() { if [ "$1" = shp ]; then echo "Shapefile holds one geometry type"; else echo "$2"; fi; }
 
 # ---- a folder that does not exist; an output that is a folder; unknown type ----------
 for ext in $FORMATS; do
     h_case "output in a missing folder (.$ext)" "$SRC"
-    h_run 2 "nothere" "$STOCKTAKE" run -q -o "$HOUT/nothere/inv.$ext" "$SRC"
+    h_run 2 "$(runpat $ext nothere)" "$STOCKTAKE" run -q -o "$HOUT/nothere/inv.$ext" "$SRC"
     h_run 2 "nothere" "$STOCKTAKE" convert -q "$SRC" "$HOUT/nothere/out.$ext"
 done
 mkdir -p "$IN/folder.gpkg"
@@ -87,10 +90,10 @@ left_nothing() {
 if [ "$(id -u)" -eq 0 ] && [ $ns_ok -eq 1 ]; then
     for ext in $FORMATS; do
         h_case "output in a read-only folder (.$ext)" "$SRC"
-        h_run 2 "inv.$ext|Read-only" "$in_mount" ro,size=64k "$STOCKTAKE" run -q -o "$HOUT/inv.$ext" "$SRC"
+        h_run 2 "$(runpat $ext "inv.$ext|Read-only")" "$in_mount" ro,size=64k "$STOCKTAKE" run -q -o "$HOUT/inv.$ext" "$SRC"
         h_run 2 "out.$ext|Read-only" "$in_mount" ro,size=64k "$STOCKTAKE" convert -q "$SRC" "$HOUT/out.$ext"
         h_case "output on a full disk (.$ext)" "$BIG"
-        h_run 2 "inv.*$ext|space" "$in_mount" size=64k "$STOCKTAKE" run -q -o "$HOUT/inv.$ext" "$BIG"
+        h_run 2 "$(runpat $ext "inv.*$ext|space")" "$in_mount" size=64k "$STOCKTAKE" run -q -o "$HOUT/inv.$ext" "$BIG"
         left_nothing
         h_run 2 "out.*$ext|space" "$in_mount" size=64k "$STOCKTAKE" convert -q "$BIG" "$HOUT/out.$ext"
         left_nothing
@@ -107,7 +110,7 @@ fi
 # ---- a file-size limit: writes fail with EFBIG, the temporary file goes ------------------
 for ext in $FORMATS; do
     h_case "output under ulimit -f 64 KiB (.$ext)" "$BIG"
-    h_run 2 "inv.*$ext" sh -c 'ulimit -f 128; exec "$@"' sh "$STOCKTAKE" run -q -o "$HOUT/inv.$ext" "$BIG"
+    h_run 2 "$(runpat $ext "inv.*$ext")" sh -c 'ulimit -f 128; exec "$@"' sh "$STOCKTAKE" run -q -o "$HOUT/inv.$ext" "$BIG"
     h_run 2 "out.*$ext" sh -c 'ulimit -f 128; exec "$@"' sh "$STOCKTAKE" convert -q "$BIG" "$HOUT/out.$ext"
 done
 

@@ -32,6 +32,11 @@ PY
 expect_rc 1 "$STOCKTAKE" run -q --fail-on error -o "$TMP/gate.geojson" "$in"
 [ -f "$TMP/gate.geojson" ] || fail "a failed gate still writes the inventory"
 
+# a Shapefile cannot hold the mixed set_aside layer: refused up front
+expect_rc 2 "$STOCKTAKE" run -q -o "$TMP/inv.shp" "$in"
+expect_stderr "convert"
+[ ! -e "$TMP/inv.shp" ] || fail "a refused run wrote a Shapefile"
+
 # bad usage and bad input: exit 2, nothing written
 expect_rc 2 "$STOCKTAKE" run -q "$in"
 expect_stderr "-o OUT"
