@@ -155,7 +155,7 @@ static fixture *make_fixture(void)
     x->audit.unmapped = x->unmapped;
     x->audit.nunmapped = 2;
     x->learned[0] = (st_audit_learned){(char *)"QM01", (char *)"material", 40,
-                                       (char *)"URM 60%, RM 40%"};
+                                       (char *)"URM 60%, RM 40%", 0, NULL};
     x->audit.learned = x->learned;
     x->audit.nlearned = 1;
     x->gates[0] = (st_audit_gate){(char *)"share(error) > 0.02", (char *)"demo.rules:40",
