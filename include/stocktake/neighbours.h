@@ -154,6 +154,21 @@ st_status st_neighbours_finish(st_neighbours *nb,
                                st_findings *findings,
                                st_diags *diags) ST_MUST_CHECK;
 
+/* One pair a scan found, for callers that need the neighbour graph (a
+** tile's halo check, docs/scale.md): positions in in.features. */
+typedef struct st_neighbours_link {
+    uint32_t a, b;               /* a first in (layer, index) order */
+    uint32_t near;               /* 1: near-duplicate pair, 0: overlap or
+                                    containment candidate that passed */
+} st_neighbours_link;
+
+/* Every pair of the scans' parts (borrowed), any kind: *out returns owned
+** array (free with st_free) of *n links, NULL when there are none.
+** ST_ERR_NOMEM only. */
+st_status st_neighbours_links(const st_neighbours *nb,
+                              st_neighbours_pairs *const *parts, size_t nparts,
+                              st_neighbours_link **out, size_t *n) ST_MUST_CHECK;
+
 /* Free the state and its spatial index (NULL is a no-op). */
 void st_neighbours_free(st_neighbours *nb);
 

@@ -46,7 +46,23 @@ typedef struct st_run_options {
     ** each feature while reading, and stops with ST_ERR_LIMIT before it
     ** passes the limit (pipeline/guard.c, docs/reliability.md). */
     uint64_t max_memory;
+    /* A part of a job split by windows (docs/scale.md): --tile "Z/X/Y" or
+    ** --bbox "W,S,E,N" (at most one; both NULL for a whole run). The run
+    ** then reads only the features within halo_m metres of the window
+    ** (0: ST_RUN_DEFAULT_HALO_M), decides duplicates and overlaps as a
+    ** whole run would (widening the halo itself when a decision reaches
+    ** beyond it), and writes a part (part.h) to 'output' for
+    ** st_run_merge; no defaults, audit or report. */
+    const char *tile;
+    const char *bbox;
+    double halo_m;
 } st_run_options;
+
+/* The halo a part reads around its window unless told otherwise: wide
+** enough for the buildings of a town (common practice, no source: a
+** building seldom spans 100 m); a wider one is found and used by the run
+** itself when needed. */
+#define ST_RUN_DEFAULT_HALO_M 200.0
 
 typedef struct st_run_layer {
     char *name;                  /* unique layer name in this run */
@@ -109,6 +125,18 @@ typedef struct st_run_result {
 st_status st_run_execute(const st_run_options *opt, st_diags *diags,
                          st_run_result **out) ST_MUST_CHECK;
 void st_run_result_free(st_run_result *r);
+
+/*
+** Finish a job split into parts: opt->inputs are the parts (part.h) that
+** `run --tile/--bbox` wrote; the other options (rules, districts,
+** reference, fill, seed, gate, output, report) as for the run, and they
+** must be the ones the parts were made with (each part records their
+** fingerprint). The parts must together hold every feature of every input
+** layer exactly once. Then defaults, audit, gate, inventory and report
+** as in st_run_execute, with the same result as a single run.
+*/
+st_status st_run_merge(const st_run_options *opt, st_diags *diags,
+                       st_run_result **out) ST_MUST_CHECK;
 
 /* The default memory limit: 75 % of physical memory or 8 GiB, whichever is
 ** less. */

@@ -30,6 +30,10 @@ int st_cmd_run(int argc, char **argv);
 void st_help_run(FILE *out);
 int st_cmd_lint(int argc, char **argv);
 void st_help_lint(FILE *out);
+int st_cmd_merge(int argc, char **argv);
+void st_help_merge(FILE *out);
+int st_cmd_tiles(int argc, char **argv);
+void st_help_tiles(FILE *out);
 int st_cmd_explain(int argc, char **argv);
 void st_help_explain(FILE *out);
 

@@ -1,5 +1,6 @@
 /*
-** cli/cmd_run.c -- `stocktake run`: parse options, run the pipeline, print
+** cli/cmd_run.c -- `stocktake run` and `stocktake merge` (which takes the
+** same options, with parts for inputs): parse options, run the pipeline, print
 ** the terminal summary the library rendered (report.h), choose the exit
 ** code: 0 done, 1 gate failed (outputs written), 2 error (nothing written).
 */
@@ -41,6 +42,15 @@ void st_help_run(FILE *out)
             "  --report DIR         write DIR/report.json and DIR/report.html (a\n"
             "                       self-contained page: map, charts, tables)\n"
             "  --crs EPSG:N         CRS of input layers that do not state one\n"
+            "  --tile Z/X/Y         write a part: only the buildings whose point falls in\n"
+            "                       this web-mercator tile, deciding duplicates and\n"
+            "                       overlaps across its edge as a whole run would;\n"
+            "                       -o PART.gpkg; finish with 'stocktake merge'\n"
+            "                       (docs/scale.md)\n"
+            "  --bbox W,S,E,N       the same for a lon/lat box (west <= lon < east,\n"
+            "                       south <= lat < north)\n"
+            "  --halo METRES        how far around the window a part reads (default\n"
+            "                       200; widened by the run itself when needed)\n"
             "  --max-memory SIZE    stop early (exit 2) rather than need more memory\n"
             "                       than SIZE (512M, 4G ...); default: 75%% of\n"
             "                       physical memory or 8G, whichever is less\n"
@@ -62,6 +72,7 @@ void st_help_run(FILE *out)
 }
 
 typedef struct run_args {
+    const char *cmd;             /* "run" or "merge" */
     st_run_options opt;
     const char **inputs;
     const char **rules;
@@ -95,7 +106,7 @@ static int parse_args(int argc, char **argv, run_args *a)
     a->inputs = calloc((size_t)argc, sizeof *a->inputs);
     a->rules = calloc((size_t)argc, sizeof *a->rules);
     if (!a->inputs || !a->rules)
-        return st_cli_usage_error("run", "out of memory");
+        return st_cli_usage_error(a->cmd, "out of memory");
     a->opt.seed = 1;
     a->opt.threads = 0;   /* the online cores (pipeline/pool.c) */
     for (int i = 1; i < argc; i++) {
@@ -128,21 +139,21 @@ static int parse_args(int argc, char **argv, run_args *a)
             else if (!strcmp(v, "draw"))
                 a->opt.fill = ST_FILL_DRAW;
             else
-                return st_cli_usage_error("run", "--fill takes most-likely or draw, not '%s'", v);
+                return st_cli_usage_error(a->cmd, "--fill takes most-likely or draw, not '%s'", v);
         } else if (!strcmp(arg, "--seed") && has_next) {
             unsigned long long v = 0;
             if (!parse_count(argv[++i], UINT64_MAX, &v))
-                return st_cli_usage_error("run", "--seed takes a whole number, not '%s'", argv[i]);
+                return st_cli_usage_error(a->cmd, "--seed takes a whole number, not '%s'", argv[i]);
             a->opt.seed = v;
         } else if ((!strcmp(arg, "-j") || !strcmp(arg, "--threads")) && has_next) {
             unsigned long long v = 0;
             if (!parse_count(argv[++i], ST_PLACE_MAX_THREADS, &v) || v == 0)
-                return st_cli_usage_error("run", "-j takes a number of threads from 1 to %d, "
+                return st_cli_usage_error(a->cmd, "-j takes a number of threads from 1 to %d, "
                                           "not '%s'", ST_PLACE_MAX_THREADS, argv[i]);
             a->opt.threads = (unsigned)v;
         } else if (!strcmp(arg, "--max-memory") && has_next) {
             if (!st_cli_parse_size(argv[++i], &a->opt.max_memory))
-                return st_cli_usage_error("run", "--max-memory takes a size such as "
+                return st_cli_usage_error(a->cmd, "--max-memory takes a size such as "
                                           "512M or 4G, not '%s'", argv[i]);
         }
         else if (!strcmp(arg, "--fail-on") && has_next) {
@@ -152,29 +163,35 @@ static int parse_args(int argc, char **argv, run_args *a)
             else if (!strcmp(v, "error"))
                 a->opt.fail_on = ST_FAIL_ON_ERROR;
             else
-                return st_cli_usage_error("run", "--fail-on takes warn or error, not '%s'", v);
+                return st_cli_usage_error(a->cmd, "--fail-on takes warn or error, not '%s'", v);
         } else if (!strcmp(arg, "--timings"))
             a->timings = 1;
         else if (!strcmp(arg, "-q") || !strcmp(arg, "--quiet"))
             a->quiet = 1;
         else if (arg[0] == '-' && arg[1])
-            return st_cli_usage_error("run", "unknown or incomplete option '%s'", arg);
+            return st_cli_usage_error(a->cmd, "unknown or incomplete option '%s'", arg);
         else
             a->inputs[a->opt.ninputs++] = arg;
     }
     if (!a->opt.output)
-        return st_cli_usage_error("run", "say where to write the inventory with -o OUT");
+        return st_cli_usage_error(a->cmd, "say where to write the inventory with -o OUT");
     /* set_aside holds null, point and polygon geometries alike, which one
     ** Shapefile cannot: refuse before reading anything. */
     if (st_str_ends_with_ci(a->opt.output, ".shp"))
-        return st_cli_usage_error("run", "a Shapefile holds one geometry type, but the "
+        return st_cli_usage_error(a->cmd, "a Shapefile holds one geometry type, but the "
                                   "inventory's set_aside layer mixes them: write .gpkg, "
                                   ".geojson, .geojsonl or .csv, then 'stocktake convert "
                                   "OUT.gpkg:buildings OUT.shp'");
     if (!a->opt.ninputs)
-        return st_cli_usage_error("run", "give at least one input layer");
+        return st_cli_usage_error(a->cmd, !strcmp(a->cmd, "merge") ? "give the parts to merge"
+                                                                   : "give at least one input layer");
+    if ((a->opt.tile || a->opt.bbox) && !st_str_ends_with_ci(a->opt.output, ".gpkg"))
+        return st_cli_usage_error(a->cmd, "a part (--tile, --bbox) is a GeoPackage: "
+                                  "-o PART.gpkg");
+    if (a->opt.halo_m > 0 && !a->opt.tile && !a->opt.bbox)
+        return st_cli_usage_error(a->cmd, "--halo goes with --tile or --bbox");
     if ((a->opt.district_key || a->opt.region_key || a->opt.reference) && !a->opt.districts)
-        return st_cli_usage_error("run", "--district-key, --region-key and --reference "
+        return st_cli_usage_error(a->cmd, "--district-key, --region-key and --reference "
                                          "need --districts");
     a->opt.inputs = a->inputs;
     a->opt.rules = a->rules;
@@ -196,10 +213,11 @@ static void print_timings(const st_run_result *r)
     }
 }
 
-int st_cmd_run(int argc, char **argv)
+static int run_or_merge(const char *cmdname, int argc, char **argv)
 {
     run_args a;
     memset(&a, 0, sizeof a);
+    a.cmd = cmdname;
     int rc = parse_args(argc, argv, &a);
     if (rc != ST_EXIT_OK) {
         free(a.inputs);
@@ -228,15 +246,20 @@ int st_cmd_run(int argc, char **argv)
     st_diags d;
     st_diags_init(&d);
     st_run_result *res = NULL;
-    st_status st = st_run_execute(&a.opt, &d, &res);
+    int merge = !strcmp(cmdname, "merge");
+    st_status st = merge ? st_run_merge(&a.opt, &d, &res) : st_run_execute(&a.opt, &d, &res);
     st_progress_end(&p);
     st_cli_print_diags(&d);
     if (st != ST_OK) {
-        fprintf(stderr, "stocktake run: stopped (%s); nothing was written\n", st_status_name(st));
+        fprintf(stderr, "stocktake %s: stopped (%s); nothing was written\n", cmdname,
+                st_status_name(st));
         rc = ST_EXIT_ERROR;
     } else {
         if (!a.quiet && res->summary)
             fputs(res->summary, stderr);
+        if (!a.quiet && (a.opt.tile || a.opt.bbox))
+            fprintf(stderr, "stocktake run: part written to %s; finish the job with "
+                    "'stocktake merge' over all the parts\n", a.opt.output);
         if (a.timings)
             print_timings(res);
         rc = res->gate_failed ? ST_EXIT_GATE : ST_EXIT_OK;
@@ -247,4 +270,33 @@ int st_cmd_run(int argc, char **argv)
     free(a.inputs);
     free(a.rules);
     return rc;
+}
+
+int st_cmd_run(int argc, char **argv)
+{
+    return run_or_merge("run", argc, argv);
+}
+
+int st_cmd_merge(int argc, char **argv)
+{
+    return run_or_merge("merge", argc, argv);
+}
+
+void st_help_merge(FILE *out)
+{
+    fprintf(out,
+            "usage: stocktake merge [OPTIONS] -o OUT PART...\n"
+            "\n"
+            "Finish a job split into windows: combine the parts that 'stocktake run\n"
+            "--tile' or '--bbox' wrote into one inventory and report, the same as a\n"
+            "single run over the whole layer would give (docs/scale.md).\n"
+            "\n"
+            "OPTIONS are those of 'stocktake run' (-o, -r, --districts, --district-key,\n"
+            "--region-key, --reference, --fill, --seed, --report, --fail-on, -j, -q,\n"
+            "--timings, --max-memory) and must name the same rules, districts,\n"
+            "reference and fill options the parts were made with: each part records\n"
+            "them and merge refuses a part made otherwise. The parts must together\n"
+            "hold every feature of every input layer once.\n"
+            "\n"
+            "exit: 0 done; 1 the gate failed; 2 error, nothing written.\n");
 }

@@ -204,3 +204,27 @@ st_status st_neighbours_finish(st_neighbours *nb, st_neighbours_pairs *const *pa
     }
     return rc;
 }
+
+st_status st_neighbours_links(const st_neighbours *nb, st_neighbours_pairs *const *parts,
+                              size_t nparts, st_neighbours_link **out, size_t *n)
+{
+    size_t total = 0;
+    for (size_t i = 0; i < nparts; i++)
+        total += parts[i] ? parts[i]->count : 0;
+    *out = NULL;
+    *n = 0;
+    if (total == 0)
+        return ST_OK;
+    st_neighbours_link *l = st_malloc(total * sizeof *l);
+    if (!l)
+        return ST_ERR_NOMEM;
+    size_t k = 0;
+    for (size_t i = 0; i < nparts; i++)
+        for (size_t j = 0; parts[i] && j < parts[i]->count; j++) {
+            const nb_pair *p = &parts[i]->items[j];
+            l[k++] = (st_neighbours_link){nb->items[p->a], nb->items[p->b], p->kind == NB_NEAR};
+        }
+    *out = l;
+    *n = k;
+    return ST_OK;
+}

@@ -190,8 +190,8 @@ st_status st_run_guard_start(const st_run_options *opt, st_diags *diags,
     budget->limit = opt->max_memory ? opt->max_memory : st_run_default_max_memory();
     budget->used = GUARD_BASE;
     st_status rc = check_paths(opt, diags);
-    if (rc != ST_OK)
-        return rc;
+    if (rc != ST_OK || opt->tile || opt->bbox)
+        return rc;   /* a part holds only its window: counted as it reads */
     uint64_t need = GUARD_BASE;
     for (size_t i = 0; i < opt->ninputs; i++) {
         uint64_t e = input_estimate(opt->inputs[i]);

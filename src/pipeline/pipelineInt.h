@@ -15,6 +15,8 @@
 #include "stocktake/pipeline.h"
 #include "stocktake/place.h"
 #include "stocktake/report.h"
+#include "stocktake/strtab.h"
+#include "stocktake/tile.h"
 #include "guardInt.h"
 
 /* ---- the state of one run (pipeline.c owns it; each stage fills a part) -- */
@@ -26,6 +28,7 @@ typedef struct run_state {
     st_feature **features;       /* every feature read, in read order */
     size_t nfeatures, capfeatures;
     st_fields *fields;           /* per layer, copied from its reader */
+    size_t nfields;              /* entries of 'fields' */
     st_run_result *res;
     st_findings findings;
     st_geos *gx;
@@ -40,6 +43,21 @@ typedef struct run_state {
     st_reference *reference;     /* --reference, or NULL */
     st_defaults *defaults;       /* with rules */
     st_unmapped *unmapped;       /* with rules: unmapped source values */
+    uint64_t nread;              /* features read so far, all layers: the
+                                    last bid given */
+    st_footprint_extent *extents;/* per layer, from every feature read */
+    /* A part (run --tile / --bbox): NULL for a whole run. */
+    const st_window *window;
+    double halo_m;               /* the halo read around the window */
+    double read_box[4];          /* the window grown by the halo */
+    uint8_t *shared;             /* per feature after the tile cut: 1 when
+                                    every part holds it (tile.h) */
+    /* merge: the parts, and the strings (codes, rule lines) their
+    ** features and findings point into */
+    st_strtab *strings;
+    /* the neighbour pairs, kept for a part's halo check */
+    st_neighbours_link *links;
+    size_t nlinks;
 } run_state;
 
 
@@ -65,6 +83,18 @@ void st_run_chunk_diags_merge(run_state *s, st_diags *d, size_t n);
 /* Progress of a pool stage, reported by worker 0 (the calling thread). */
 void st_run_chunk_progress(run_state *s, unsigned worker, const char *stage, size_t done);
 
+/* ---- the state (pipeline.c) ---------------------------------------------- */
+
+/* Set up the state of a run or a merge ('opt' borrowed). */
+st_status st_run_state_init(run_state *s, const st_run_options *opt, st_diags *diags);
+/* Free the state; on rc == ST_OK hand the result to *out, else free it.
+** Returns rc. */
+st_status st_run_state_finish(run_state *s, st_status rc, st_run_result **out);
+/* The rule set (and the geometry settings it carries), then districts,
+** reference counts and defaults tables: before any data. */
+st_status st_run_load_rules(run_state *s);
+st_status st_run_load_places(run_state *s);
+
 /* ---- the stages, in run order (each: ST_OK or the failure that stops) ---- */
 
 st_status st_stage_read(run_state *s);          /* run_read.c */
@@ -75,11 +105,40 @@ st_status st_stage_rules(run_state *s);
 /* Read the defaults tables before any data (a bad table stops early). */
 st_status st_run_prepare_defaults(run_state *s);
 st_status st_stage_defaults(run_state *s);
+/* Copy the counts of 'u' (borrowed) into the result, most frequent first. */
+st_status st_run_keep_unmapped(run_state *s, const st_unmapped *u);
 st_status st_stage_findings(run_state *s);      /* run_tally.c */
 st_status st_stage_audit(run_state *s);
 st_status st_stage_gate(run_state *s);
 st_status st_stage_summary(run_state *s);       /* run_write.c */
 st_status st_stage_write(run_state *s);
+
+/* ---- parts (run_tile.c) --------------------------------------------------- */
+
+/* Decide the features the window owns and check the halo held every
+** decision about them: *need_m > 0 is the reach (metres beyond the window)
+** a halo must have for it, and nothing is changed; otherwise only the
+** owned and shared features and their findings are kept. Frees s->links. */
+st_status st_run_tile_cut(run_state *s, double *need_m);
+/* Write the part (part.h) to opt->output. */
+st_status st_stage_write_part(run_state *s);
+
+/* merge: read the parts (opt->inputs) back as the run's features,
+** findings, layers and unmapped counts, checking that they belong
+** together and hold every feature once (merge.c). */
+st_status st_stage_read_parts(run_state *s);
+
+/* The context of a run a part records and merge compares: the rule,
+** table, district and reference files with their SHA-256, the keys, fill,
+** seed and --crs. */
+#define RUN_CONTEXT_MAX 4
+typedef struct run_context {
+    const char *keys[RUN_CONTEXT_MAX];   /* static */
+    char *values[RUN_CONTEXT_MAX];       /* owned */
+    size_t n;
+} run_context;
+st_status st_run_context_make(run_state *s, run_context *c);
+void st_run_context_free(run_context *c);
 
 /*
 ** Carry a rule set's `footprint` block onto the two geometry stages'

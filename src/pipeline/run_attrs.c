@@ -10,7 +10,7 @@
 
 /* The unmapped values of the run, most frequent first, copied into the
 ** result so they outlive the rule context. */
-static st_status keep_unmapped(run_state *s, const st_unmapped *u)
+st_status st_run_keep_unmapped(run_state *s, const st_unmapped *u)
 {
     st_unmapped_item *items = NULL;
     size_t n = 0;
@@ -76,7 +76,7 @@ st_status st_stage_rules(run_state *s)
     for (unsigned w = 1; rc == ST_OK && w < s->threads; w++)
         rc = st_unmapped_merge(st_rules_ctx_unmapped(j.ctx[0]), st_rules_ctx_unmapped(j.ctx[w]));
     if (rc == ST_OK)
-        rc = keep_unmapped(s, st_rules_ctx_unmapped(j.ctx[0]));
+        rc = st_run_keep_unmapped(s, st_rules_ctx_unmapped(j.ctx[0]));
     if (rc == ST_OK)
         rc = st_unmapped_new(&s->unmapped);
     if (rc == ST_OK)

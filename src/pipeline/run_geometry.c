@@ -9,22 +9,6 @@
 
 #include "pipelineInt.h"
 
-/* The robust extent of layer l, for the swapped-axes check. */
-static st_status layer_extent(run_state *s, uint32_t l, size_t first, size_t end,
-                              st_footprint_extent *ext)
-{
-    double *xy = st_malloc(2 * (end - first + 1) * sizeof *xy);
-    if (!xy)
-        return ST_ERR_NOMEM;
-    size_t n = 0;
-    for (size_t i = first; i < end; i++)
-        if (s->features[i]->layer == l && st_footprint_center(&s->features[i]->geom, xy + 2 * n))
-            n++;
-    st_status rc = st_footprint_extent_compute(xy, n, ext);
-    st_free(xy);
-    return rc;
-}
-
 /* ---- footprint stage ---------------------------------------------------- */
 
 typedef struct fp_job {
@@ -48,38 +32,21 @@ static st_status fp_task(void *ctx, unsigned worker, size_t c)
     return rc;
 }
 
-static st_status layer_extents(run_state *s, st_footprint_extent *ext)
-{
-    st_status rc = ST_OK;
-    size_t i = 0;
-    for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++) {
-        size_t end = i;
-        while (end < s->nfeatures && s->features[end]->layer == l)
-            end++;
-        rc = layer_extent(s, (uint32_t)l, i, end, &ext[l]);
-        i = end;
-    }
-    return rc;
-}
-
 st_status st_stage_footprints(run_state *s)
 {
     size_t nchunks = 0;
     run_chunk *chunks = st_run_chunks_make(s, &nchunks);
-    fp_job j = {s, chunks, st_calloc(s->threads, sizeof *j.ck),
-                st_calloc(s->res->nlayers + 1, sizeof *j.ext), st_run_chunk_findings_new(nchunks)};
-    st_status rc = chunks && j.ck && j.ext && j.out ? ST_OK : ST_ERR_NOMEM;
+    fp_job j = {s, chunks, st_calloc(s->threads, sizeof *j.ck), s->extents,
+                st_run_chunk_findings_new(nchunks)};
+    st_status rc = chunks && j.ck && j.out ? ST_OK : ST_ERR_NOMEM;
     for (unsigned w = 0; rc == ST_OK && w < s->threads; w++)
         rc = st_footprint_checker_new(&j.ck[w]);
-    if (rc == ST_OK)
-        rc = layer_extents(s, (st_footprint_extent *)j.ext);
     if (rc == ST_OK)
         rc = st_pool_run(s->threads, nchunks, fp_task, &j);
     rc = st_run_chunk_findings_merge(s, j.out, nchunks, rc);
     for (unsigned w = 0; j.ck && w < s->threads; w++)
         st_footprint_checker_free(j.ck[w]);
     st_free(j.ck);
-    st_free((void *)j.ext);
     st_free(chunks);
     if (rc != ST_OK)
         st_diags_add(s->diags, ST_SEV_ERROR, rc, NULL, "footprint stage failed: %s",
@@ -140,6 +107,8 @@ st_status st_stage_neighbours(run_state *s)
     st_run_chunk_diags_merge(s, j.diags, j.diags ? nchunks : 0);
     if (rc == ST_OK)
         rc = st_neighbours_finish(nb, j.pairs, nchunks, &s->findings, s->diags);
+    if (rc == ST_OK && s->window)   /* a part checks its halo with them */
+        rc = st_neighbours_links(nb, j.pairs, nchunks, &s->links, &s->nlinks);
     for (size_t c = 0; j.pairs && c < nchunks; c++)
         st_neighbours_pairs_free(j.pairs[c]);
     for (unsigned w = 1; j.gx && w < s->threads; w++)

@@ -1,0 +1,141 @@
+/*
+** cli/cmd_tiles.c -- `stocktake tiles -z Z INPUT...`: the web-mercator
+** tiles of zoom Z a job over INPUT splits into, one "Z/X/Y" a line, for
+** scripts/run-tiles.sh and job arrays (docs/scale.md).
+**
+** A tile is listed when some footprint's box meets it: the tile that owns
+** a building (tile.h) is always among those its box meets, since the
+** point that decides lies inside the box. Footprints without coordinates
+** are held by every part and need no tile of their own.
+*/
+#include <stdlib.h>
+#include <string.h>
+
+#include "cli.h"
+#include "stocktake/io.h"
+#include "stocktake/tile.h"
+
+void st_help_tiles(FILE *out)
+{
+    fprintf(out,
+            "usage: stocktake tiles -z ZOOM [--crs EPSG:N] INPUT...\n"
+            "\n"
+            "Print the web-mercator tiles Z/X/Y of zoom ZOOM that hold footprints of\n"
+            "the INPUT layers, one a line in order: the windows of 'stocktake run\n"
+            "--tile' for a job too large for one run (docs/scale.md).\n"
+            "exit: 0 done; 2 error.\n");
+}
+
+/* A growing set of tile keys (x << 32 | y), sorted and made unique at the end. */
+typedef struct key_list {
+    uint64_t *keys;
+    size_t n, cap;
+} key_list;
+
+static int add_key(key_list *k, uint32_t x, uint32_t y)
+{
+    if (k->n == k->cap) {
+        size_t cap = k->cap ? 2 * k->cap : 1024;
+        uint64_t *a = realloc(k->keys, cap * sizeof *a);
+        if (!a)
+            return 0;
+        k->keys = a;
+        k->cap = cap;
+    }
+    k->keys[k->n++] = (uint64_t)x << 32 | y;
+    return 1;
+}
+
+static int by_key(const void *a, const void *b)
+{
+    uint64_t x = *(const uint64_t *)a, y = *(const uint64_t *)b;
+    return x < y ? -1 : x > y;
+}
+
+/* The tiles the box of f meets (only its last key when it repeats). */
+static int add_feature(key_list *k, const st_feature *f, int z)
+{
+    double b[4];
+    if (!st_geom_bbox(&f->geom, b) || !(b[0] >= -180 && b[2] <= 180 && b[1] >= -90 &&
+                                        b[3] <= 90))
+        return 1;
+    uint32_t x0, y0, x1, y1;
+    st_tile_of(b[0], b[3], z, &x0, &y0);
+    st_tile_of(b[2], b[1], z, &x1, &y1);
+    for (uint32_t x = x0; x <= x1; x++)
+        for (uint32_t y = y0; y <= y1; y++)
+            if (k->n == 0 || k->keys[k->n - 1] != ((uint64_t)x << 32 | y))
+                if (!add_key(k, x, y))
+                    return 0;
+    return 1;
+}
+
+static int read_input(const char *path, const char *crs, int z, key_list *k)
+{
+    st_read_options ro = ST_READ_OPTIONS_DEFAULT;
+    ro.crs_override = crs;
+    st_diags d;
+    st_diags_init(&d);
+    st_reader *r = NULL;
+    st_status rc = st_reader_open(path, &ro, &d, &r);
+    while (rc == ST_OK) {
+        st_feature *f = NULL;
+        rc = st_reader_next(r, &f);
+        if (rc != ST_OK || !f)
+            break;
+        int ok = add_feature(k, f, z);
+        st_feature_free(f);
+        if (!ok)
+            rc = ST_ERR_NOMEM;
+    }
+    st_reader_close(r);
+    st_cli_print_diags(&d);
+    st_diags_free(&d);
+    if (rc == ST_ERR_NOMEM)
+        fprintf(stderr, "stocktake tiles: out of memory\n");
+    return rc == ST_OK;
+}
+
+int st_cmd_tiles(int argc, char **argv)
+{
+    int z = -1;
+    const char *crs = NULL;
+    key_list k = {NULL, 0, 0};
+    int ok = 1, ninputs = 0;
+    for (int i = 1; i < argc && ok; i++) {
+        if ((!strcmp(argv[i], "-z") || !strcmp(argv[i], "--zoom")) && i + 1 < argc) {
+            char *end = NULL;
+            long v = strtol(argv[++i], &end, 10);
+            if (!*argv[i] || *end || v < 0 || v > ST_TILE_MAX_ZOOM) {
+                free(k.keys);
+                return st_cli_usage_error("tiles", "-z takes a zoom from 0 to %d, not '%s'",
+                                          ST_TILE_MAX_ZOOM, argv[i]);
+            }
+            z = (int)v;
+        } else if (!strcmp(argv[i], "--crs") && i + 1 < argc)
+            crs = argv[++i];
+        else if (argv[i][0] == '-' && argv[i][1]) {
+            free(k.keys);
+            return st_cli_usage_error("tiles", "unknown or incomplete option '%s'", argv[i]);
+        } else
+            ninputs++;
+    }
+    if (z < 0 || !ninputs) {
+        free(k.keys);
+        return st_cli_usage_error("tiles", "give a zoom with -z and at least one input layer");
+    }
+    for (int i = 1; i < argc && ok; i++) {
+        if (argv[i][0] == '-' && argv[i][1]) {
+            i++;   /* every option here takes a value */
+            continue;
+        }
+        ok = read_input(argv[i], crs, z, &k);
+    }
+    if (ok && k.n)
+        qsort(k.keys, k.n, sizeof *k.keys, by_key);
+    for (size_t i = 0; ok && i < k.n; i++)
+        if (i == 0 || k.keys[i] != k.keys[i - 1])
+            printf("%d/%u/%u\n", z, (unsigned)(k.keys[i] >> 32), (unsigned)(k.keys[i] & 0xffffffffu));
+    free(k.keys);
+    return ok ? ST_EXIT_OK : ST_EXIT_ERROR;
+}
