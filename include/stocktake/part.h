@@ -130,8 +130,8 @@ const st_part_layer *st_part_layers(const st_part *p, size_t *n);
 const st_part_file *st_part_files(const st_part *p, size_t *n);
 /* The next feature in bid order: *out owned (NULL at the end), *shared as
 ** written. Rule strings interned in 'strings'. At the end the number of
-** features is checked against the one committed. After ST_ERR_FORMAT (or
-** another failure but ST_ERR_NOMEM) every later call returns it again. */
+** features is checked against the one committed. After a failure every
+** later call returns it again (the walk does not resume). */
 st_status st_part_next_feature(st_part *p, st_strtab *strings, st_feature **out,
                                int *shared) ST_MUST_CHECK;
 /* Append every finding to 'dst' in the order written; codes are interned

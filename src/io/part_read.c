@@ -516,8 +516,8 @@ st_status st_part_next_feature(st_part *p, st_strtab *strings, st_feature **out,
     } else {
         rc = sql_fail(p, step, "reading part_features");
     }
-    if (rc != ST_OK && rc != ST_ERR_NOMEM)
-        p->state = rc;   /* a damaged part stays refused */
+    if (rc != ST_OK)
+        p->state = rc;   /* the row is consumed: the walk cannot resume */
     return rc;
 }
 

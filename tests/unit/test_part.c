@@ -33,6 +33,7 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
+#include "stocktake/io.h"
 #include "stocktake/part.h"
 
 #define PY "/usr/bin/python3"
@@ -453,9 +454,22 @@ typedef struct rec {
     size_t n;
 } rec;
 
-static void r8(rec *r, unsigned v) { r->d[r->n++] = (unsigned char)v; }
-static void r32(rec *r, uint32_t v) { for (int i = 0; i < 4; i++) r8(r, (v >> (8 * i)) & 0xff); }
-static void r64(rec *r, uint64_t v) { for (int i = 0; i < 8; i++) r8(r, (unsigned)(v >> (8 * i)) & 0xff); }
+static void r8(rec *r, unsigned v)
+{
+    r->d[r->n++] = (unsigned char)v;
+}
+
+static void r32(rec *r, uint32_t v)
+{
+    for (int i = 0; i < 4; i++)
+        r8(r, (v >> (8 * i)) & 0xff);
+}
+
+static void r64(rec *r, uint64_t v)
+{
+    for (int i = 0; i < 8; i++)
+        r8(r, (unsigned)(v >> (8 * i)) & 0xff);
+}
 
 /* Format byte, layer, index, NULL source id. */
 static void r_head(rec *r)
@@ -680,10 +694,11 @@ static void sample_layers(st_part_layer layers[2])
     layers[0] = (st_part_layer){"buildings", "in/buildings.gpkg", "GPKG", "EPSG:4326",
                                 123456789012ULL, {NULL, 0, 0}};
     st_fields_init(&layers[0].fields);
-    assert_int_equal(st_fields_add(&layers[0].fields, "building", ST_FIELD_TEXT, 80, 0, NULL), ST_OK);
-    assert_int_equal(st_fields_add(&layers[0].fields, "levels", ST_FIELD_INTEGER, 4, 0, NULL), ST_OK);
-    assert_int_equal(st_fields_add(&layers[0].fields, "height", ST_FIELD_REAL, 10, 2, NULL), ST_OK);
-    assert_int_equal(st_fields_add(&layers[0].fields, "tags", ST_FIELD_JSON, 0, 0, NULL), ST_OK);
+    st_fields *f = &layers[0].fields;
+    assert_int_equal(st_fields_add(f, "building", ST_FIELD_TEXT, 80, 0, NULL), ST_OK);
+    assert_int_equal(st_fields_add(f, "levels", ST_FIELD_INTEGER, 4, 0, NULL), ST_OK);
+    assert_int_equal(st_fields_add(f, "height", ST_FIELD_REAL, 10, 2, NULL), ST_OK);
+    assert_int_equal(st_fields_add(f, "tags", ST_FIELD_JSON, 0, 0, NULL), ST_OK);
     layers[1] = (st_part_layer){"extra", NULL, "GeoJSON", NULL, 0, {NULL, 0, 0}};
     st_fields_init(&layers[1].fields);
 }
@@ -1077,12 +1092,26 @@ static void test_part_open_refuses_non_parts(void **state)
     /* a GeoPackage that is not a part */
     snprintf(path, sizeof path, "%s/layer.gpkg", dir);
     sql(path, "PRAGMA application_id = 1196444487; PRAGMA user_version = 10200;"
-              "CREATE TABLE gpkg_contents (table_name TEXT); CREATE TABLE buildings (fid INTEGER PRIMARY KEY)");
+              "CREATE TABLE gpkg_contents (table_name TEXT);"
+              "CREATE TABLE buildings (fid INTEGER PRIMARY KEY)");
+    expect_open_fails(path, ST_ERR_FORMAT, "without a part_info table");
+    /* a GeoPackage as the project writes its outputs */
+    snprintf(path, sizeof path, "%s/out.gpkg", dir);
+    st_diags d;
+    st_diags_init(&d);
+    st_writer *gw = NULL;
+    st_fields fields;
+    st_fields_init(&fields);
+    st_feature *one = make_feature(F_HOLES, 1);
+    assert_int_equal(st_writer_open(path, &d, &gw), ST_OK);
+    assert_int_equal(st_writer_begin_layer(gw, "buildings", &fields, ST_GEOM_POLYGON), ST_OK);
+    assert_int_equal(st_writer_write(gw, one), ST_OK);
+    assert_int_equal(st_writer_commit(gw), ST_OK);
+    st_writer_close(gw);
+    st_feature_free(one);
     expect_open_fails(path, ST_ERR_FORMAT, "without a part_info table");
     /* a part of another format version, and one with no version */
     snprintf(path, sizeof path, "%s/p.gpkg", dir);
-    st_diags d;
-    st_diags_init(&d);
     assert_int_equal(write_sample(path, &d, 1), ST_OK);
     snprintf(other, sizeof other, "%s/v2.gpkg", dir);
     copy_file(path, other, -1);
@@ -1156,9 +1185,12 @@ static void test_part_damaged_records(void **state)
     static const struct {
         const char *sql, *words;
     } cases[] = {
-        {"UPDATE part_features SET data = substr(data, 1, 20) WHERE bid = 5", "bid 5: the stored feature is damaged"},
-        {"UPDATE part_features SET data = CAST(data || x'00' AS BLOB) WHERE bid = 7", "bid 7: the stored feature is damaged"},
-        {"UPDATE part_features SET bid = 8 WHERE bid = 7", "bid 8: the stored feature is damaged (it holds bid 7)"},
+        {"UPDATE part_features SET data = substr(data, 1, 20) WHERE bid = 5",
+         "bid 5: the stored feature is damaged"},
+        {"UPDATE part_features SET data = CAST(data || x'00' AS BLOB) WHERE bid = 7",
+         "bid 7: the stored feature is damaged"},
+        {"UPDATE part_features SET bid = 8 WHERE bid = 7",
+         "bid 8: the stored feature is damaged (it holds bid 7)"},
         {"UPDATE part_features SET data = 'text' WHERE bid = 2", "bid 2:"},
         {"UPDATE part_features SET shared = 2 WHERE bid = 2", "bid 2:"},
         {"DELETE FROM part_features WHERE bid = 9", "holds 4 features, 5 were committed"},
@@ -1259,6 +1291,36 @@ static void test_part_nomem(void **state)
     st_diags_free(&d);
 }
 
+static void test_part_walk_stops_after_a_failure(void **state)
+{
+    fixture *fx = *state;
+    char dir[128], path[256];
+    subdir(fx, "walkstop", dir, sizeof dir);
+    snprintf(path, sizeof path, "%s/p.gpkg", dir);
+    st_diags d;
+    st_diags_init(&d);
+    assert_int_equal(write_sample(path, &d, 1), ST_OK);
+    st_strtab *strings = st_strtab_new(0, 0);
+    st_part *p = NULL;
+    assert_int_equal(st_part_open(path, &d, &p), ST_OK);
+    st_feature *f = NULL;
+    int shared;
+    assert_int_equal(st_part_next_feature(p, strings, &f, &shared), ST_OK);
+    assert_true(f && f->bid == 1);
+    st_feature_free(f);
+    st_alloc_fail_after(1);   /* the record of bid 2 cannot be decoded */
+    assert_int_equal(st_part_next_feature(p, strings, &f, &shared), ST_ERR_NOMEM);
+    st_alloc_fail_after(0);
+    assert_null(f);
+    /* no silent skip to bid 5: the walk stays failed */
+    assert_int_equal(st_part_next_feature(p, strings, &f, &shared), ST_ERR_NOMEM);
+    assert_null(f);
+    st_part_close(p);
+    st_strtab_free(strings);
+    assert_int_equal(d.count, 0);
+    st_diags_free(&d);
+}
+
 static int have_file(const char *p)
 {
     struct stat st;
@@ -1314,6 +1376,7 @@ int main(void)
         cmocka_unit_test(test_part_open_refuses_non_parts),
         cmocka_unit_test(test_part_damaged_records),
         cmocka_unit_test(test_part_nomem),
+        cmocka_unit_test(test_part_walk_stops_after_a_failure),
         cmocka_unit_test(test_part_is_a_geopackage_for_gdal),
     };
     return cmocka_run_group_tests_name("part", tests, group_setup, group_teardown);
