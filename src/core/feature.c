@@ -125,8 +125,15 @@ st_status st_geom_copy(st_geom *dst, const st_geom *src)
         return ST_ERR_NOMEM;
     }
     memcpy(dst->part_ring, src->part_ring, ((size_t)src->nparts + 1) * sizeof *dst->part_ring);
-    memcpy(dst->ring_coord, src->ring_coord, ((size_t)src->nrings + 1) * sizeof *dst->ring_coord);
-    memcpy(dst->xy, src->xy, (size_t)src->ncoords * 2 * sizeof *dst->xy);
+    /* parts without rings (a multipolygon of empty polygons): the builder
+    ** has not made a ring array yet */
+    if (src->ring_coord)
+        memcpy(dst->ring_coord, src->ring_coord,
+               ((size_t)src->nrings + 1) * sizeof *dst->ring_coord);
+    else
+        dst->ring_coord[0] = 0;
+    if (src->ncoords)
+        memcpy(dst->xy, src->xy, (size_t)src->ncoords * 2 * sizeof *dst->xy);
     dst->nparts = src->nparts;
     dst->nrings = src->nrings;
     dst->ncoords = dst->cap_coords = src->ncoords;

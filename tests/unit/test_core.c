@@ -152,6 +152,30 @@ static void test_geom_builder_and_orient(void **state)
     st_geom_clear(&g);
 }
 
+/* A multipolygon of empty polygons: parts but no rings nor coordinates
+** (the builder has made no ring array); its copy is the same shape. */
+static void test_geom_copy_parts_without_rings(void **state)
+{
+    (void)state;
+    st_geom g, copy;
+    st_geom_init(&g);
+    st_geom_init(&copy);
+    g.type = ST_GEOM_MULTIPOLYGON;
+    assert_int_equal(st_geom_begin_part(&g), ST_OK);
+    assert_int_equal(g.nparts, 1);
+    assert_int_equal(g.nrings, 0);
+    assert_int_equal(st_geom_copy(&copy, &g), ST_OK);
+    assert_int_equal(copy.type, ST_GEOM_MULTIPOLYGON);
+    assert_int_equal(copy.nparts, 1);
+    assert_int_equal(copy.nrings, 0);
+    assert_int_equal(copy.ncoords, 0);
+    assert_int_equal(copy.part_ring[0], 0);
+    assert_int_equal(copy.ring_coord[0], 0);
+    assert_true(st_geom_is_empty(&copy));
+    st_geom_clear(&copy);
+    st_geom_clear(&g);
+}
+
 static void test_geos_roundtrip_wkb(void **state)
 {
     (void)state;
@@ -299,6 +323,7 @@ int main(void)
         cmocka_unit_test(test_diags_cap_counts_rest),
         cmocka_unit_test(test_utf8),
         cmocka_unit_test(test_geom_builder_and_orient),
+        cmocka_unit_test(test_geom_copy_parts_without_rings),
         cmocka_unit_test(test_geos_roundtrip_wkb),
         cmocka_unit_test(test_geos_rejects_unclosed_ring),
         cmocka_unit_test(test_geos_bridge_reports_nomem),
