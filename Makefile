@@ -55,7 +55,7 @@ FUZZ_SECONDS ?= 30
 FUZZ_CC  ?= clang
 FUZZ_BUILD ?= build-fuzz
 
-.PHONY: all check unit replay e2e ref demo bench bench-compare deps install clean symbols \
+.PHONY: all check unit replay e2e ref demo bench bench-compare bench-tiles deps install clean symbols \
         fuzz fuzz-bins valgrind
 
 all: $(BIN)
@@ -149,6 +149,11 @@ bench: deps
 bench-compare: deps
 	@$(MAKE) --no-print-directory all
 	@STOCKTAKE=$(abspath $(BIN)) sh bench/compare.sh
+
+# Splitting a job into windows: 1, 2, 4, 16 parts and the merge (docs/scale.md).
+bench-tiles: deps
+	@$(MAKE) --no-print-directory all
+	@STOCKTAKE=$(abspath $(BIN)) sh bench/tiles.sh
 
 install: $(BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/man/man1

@@ -43,7 +43,12 @@
 ** bit), source values (NULL kept apart from ""), bid, status, reason,
 ** duplicate_of, area_m2, perimeter_m (bit for bit), flags, district,
 ** schema values (text or NULL, provenance, rule string or NULL).
-** Little-endian, fixed-width integers, a leading format byte.
+** Little-endian, fixed-width integers, a leading format byte (layout in
+** src/core/feature_codec.c). ST_ERR_USAGE when 'f' could not be decoded
+** back (geometry offsets not from 0, decreasing or not ending at the
+** count; status or provenance out of range; district below -1);
+** ST_ERR_LIMIT when a string is 4 GiB or more or 'out' would pass its
+** limit; ST_ERR_NOMEM. On failure 'out' is unchanged.
 */
 st_status st_feature_encode(const st_feature *f, st_buf *out) ST_MUST_CHECK;
 
@@ -53,7 +58,12 @@ st_status st_feature_encode(const st_feature *f, st_buf *out) ST_MUST_CHECK;
 ** interned in 'strings' (borrowed; they stay valid as long as it does).
 ** A truncated, over-long or inconsistent blob (ring/part offsets out of
 ** range, counts beyond the bytes left, unknown enum values) is
-** ST_ERR_FORMAT; ST_ERR_NOMEM on no memory.
+** ST_ERR_FORMAT; ST_ERR_NOMEM on no memory. Only what st_feature_encode
+** writes is accepted, so a decoded feature encodes to the same bytes. The
+** source values come back packed (st_feature_pack_values); the geometry
+** arrays sized to their contents. 'strings' may be NULL when no schema
+** value names a rule (ST_ERR_USAGE otherwise); its limits give
+** ST_ERR_LIMIT. Nothing is interned from a record that does not decode.
 */
 st_status st_feature_decode(const void *data, size_t n, st_strtab *strings,
                             st_feature **out) ST_MUST_CHECK;
@@ -78,7 +88,9 @@ typedef struct st_part_writer st_part_writer;
 ** diagnostic names the path on failure; *out NULL then. */
 st_status st_part_writer_open(const char *path, st_diags *diags,
                               st_part_writer **out) ST_MUST_CHECK;
-/* Key/value context rows (2 * n strings, borrowed). */
+/* Key/value context rows (2 * n strings, borrowed; a value may be NULL).
+** Keys starting with "part_" are the part's own (its format version, the
+** row counts commit records): ST_ERR_USAGE, as for a key written twice. */
 st_status st_part_write_info(st_part_writer *w, const char *const *kv,
                              size_t n) ST_MUST_CHECK;
 st_status st_part_write_layers(st_part_writer *w, const st_part_layer *layers,
@@ -86,7 +98,9 @@ st_status st_part_write_layers(st_part_writer *w, const st_part_layer *layers,
 st_status st_part_write_files(st_part_writer *w, const st_part_file *files,
                               size_t n) ST_MUST_CHECK;
 /* One feature (borrowed). 'shared' is 1 for a feature every part holds
-** (one without coordinates, which no tile owns): merge keeps one copy. */
+** (one without coordinates, which no tile owns): merge keeps one copy.
+** A bid written twice is ST_ERR_USAGE, one above INT64_MAX ST_ERR_LIMIT
+** (SQLite's integer key). */
 st_status st_part_write_feature(st_part_writer *w, const st_feature *f,
                                 int shared) ST_MUST_CHECK;
 /* Every finding of 'f' (borrowed), in order. */
@@ -115,15 +129,20 @@ const char *st_part_info(const st_part *p, const char *key);
 const st_part_layer *st_part_layers(const st_part *p, size_t *n);
 const st_part_file *st_part_files(const st_part *p, size_t *n);
 /* The next feature in bid order: *out owned (NULL at the end), *shared as
-** written. Rule strings interned in 'strings'. */
+** written. Rule strings interned in 'strings'. At the end the number of
+** features is checked against the one committed. After ST_ERR_FORMAT (or
+** another failure but ST_ERR_NOMEM) every later call returns it again. */
 st_status st_part_next_feature(st_part *p, st_strtab *strings, st_feature **out,
                                int *shared) ST_MUST_CHECK;
 /* Append every finding to 'dst' in the order written; codes are interned
-** in 'strings' (a finding's code must outlive it). */
+** in 'strings' (a finding's code must outlive it). All or nothing: on
+** failure 'dst' is as it was. x/y come back bit for bit, NaN as NaN, but a
+** zero loses its sign (SQLite's REAL). */
 st_status st_part_read_findings(st_part *p, st_strtab *strings,
                                 st_findings *dst) ST_MUST_CHECK;
-/* Add the unmapped counts to 'add(ud, field, value, count)'; *dropped gets
-** the part's dropped count. */
+/* Add the unmapped counts to 'add(ud, field, value, count)' in the order
+** written, stopping at the first status it returns other than ST_OK;
+** *dropped gets the part's dropped count. */
 st_status st_part_read_unmapped(st_part *p,
                                 st_status (*add)(void *ud, const char *field,
                                                  const char *value, uint64_t count),

@@ -164,6 +164,16 @@ static int parse_args(int argc, char **argv, run_args *a)
                 a->opt.fail_on = ST_FAIL_ON_ERROR;
             else
                 return st_cli_usage_error(a->cmd, "--fail-on takes warn or error, not '%s'", v);
+        } else if (!strcmp(arg, "--tile") && has_next && !strcmp(a->cmd, "run"))
+            a->opt.tile = argv[++i];
+        else if (!strcmp(arg, "--bbox") && has_next && !strcmp(a->cmd, "run"))
+            a->opt.bbox = argv[++i];
+        else if (!strcmp(arg, "--halo") && has_next && !strcmp(a->cmd, "run")) {
+            char *end = NULL;
+            a->opt.halo_m = strtod(argv[++i], &end);
+            if (!*argv[i] || *end || !(a->opt.halo_m > 0) || a->opt.halo_m > 1e6)
+                return st_cli_usage_error(a->cmd, "--halo takes metres between 0 and 1000000, "
+                                          "not '%s'", argv[i]);
         } else if (!strcmp(arg, "--timings"))
             a->timings = 1;
         else if (!strcmp(arg, "-q") || !strcmp(arg, "--quiet"))

@@ -1,0 +1,83 @@
+#!/bin/sh
+# run --tile / --bbox and merge (docs/scale.md): the demo town split into
+# the tiles of zoom 16 (at least 16 of them), each run as a part, then
+# merged, gives the inventory and report of a single run feature by
+# feature (tests/e2e/compare_inventories.py): the same buildings kept, the
+# same duplicates set aside, the same findings, district figures, defaults
+# learned from the data and drawn with a seed. Then the same with two
+# boxes and a halo too small (the run widens it itself), and the merges
+# that must be refused: a part missing, a part twice (overlapping
+# windows), a part made with other rules, a part with a report.
+. "$ST_TESTS_ROOT/e2e/lib.sh"
+S=$ROOT/samples
+SOURCE_DATE_EPOCH=1700000000
+export SOURCE_DATE_EPOCH
+opts="-r $ROOT/rules/demo.rules --districts $S/districts.geojson --district-key district_id
+--region-key region_id --reference $S/reference_counts.csv --fill draw --seed 7"
+ins="$S/buildings_osm.geojson $S/buildings_cadastre.geojson"
+before=$(sha "$S/buildings_osm.geojson")
+
+# shellcheck disable=SC2086
+"$STOCKTAKE" run -q $opts -o "$TMP/single.gpkg" --report "$TMP/single" $ins 2>"$TMP/err" ||
+    { cat "$TMP/err" >&2; fail "single run failed"; }
+
+# shellcheck disable=SC2086
+"$STOCKTAKE" tiles -z 16 $ins >"$TMP/tiles" || fail "tiles failed"
+n=$(wc -l <"$TMP/tiles")
+[ "$n" -ge 16 ] || fail "only $n tiles at zoom 16"
+mkdir -p "$TMP/parts"
+while read -r t; do
+    # shellcheck disable=SC2086
+    "$STOCKTAKE" run -q $opts --tile "$t" -o "$TMP/parts/$(echo "$t" | tr / _).gpkg" $ins \
+        2>"$TMP/err" || { cat "$TMP/err" >&2; fail "part $t failed"; }
+done <"$TMP/tiles"
+# shellcheck disable=SC2086
+"$STOCKTAKE" merge -q $opts -o "$TMP/merged.gpkg" --report "$TMP/merged" "$TMP"/parts/*.gpkg \
+    2>"$TMP/err" || { cat "$TMP/err" >&2; fail "merge failed"; }
+$PY "$ST_TESTS_ROOT/e2e/compare_inventories.py" "$TMP/single.gpkg" "$TMP/merged.gpkg" \
+    "$TMP/single" "$TMP/merged" || fail "tiles merged differ from the single run"
+[ "$(sha "$S/buildings_osm.geojson")" = "$before" ] || fail "input changed"
+
+# Two boxes split at the town's middle, with a 1 m halo: buildings across
+# the cut make the run read again with a wider one (a note says so).
+mid=-126.2375
+# shellcheck disable=SC2086
+"$STOCKTAKE" run $opts --bbox "-127,-49,$mid,-47" --halo 1 -o "$TMP/west.gpkg" $ins \
+    >/dev/null 2>"$TMP/err" || { cat "$TMP/err" >&2; fail "west box failed"; }
+grep -q "reading again with" "$TMP/err" || fail "no halo widening noted: $(cat "$TMP/err")"
+# shellcheck disable=SC2086
+"$STOCKTAKE" run -q $opts --bbox "$mid,-49,-125,-47" --halo 1 -o "$TMP/east.gpkg" $ins ||
+    fail "east box failed"
+# shellcheck disable=SC2086
+"$STOCKTAKE" merge -q $opts -o "$TMP/boxes.gpkg" "$TMP/west.gpkg" "$TMP/east.gpkg" ||
+    fail "merge of boxes failed"
+$PY "$ST_TESTS_ROOT/e2e/compare_inventories.py" "$TMP/single.gpkg" "$TMP/boxes.gpkg" ||
+    fail "boxes merged differ from the single run"
+
+# Refused merges: exit 2, a message, nothing written.
+first=$(ls "$TMP"/parts/*.gpkg | head -n 1)
+rest=$(ls "$TMP"/parts/*.gpkg | tail -n +2)
+# shellcheck disable=SC2086
+expect_rc 2 "$STOCKTAKE" merge -q $opts -o "$TMP/bad.gpkg" $rest
+expect_stderr "a window is missing"
+# shellcheck disable=SC2086
+expect_rc 2 "$STOCKTAKE" merge -q $opts -o "$TMP/bad.gpkg" "$TMP"/parts/*.gpkg "$first"
+expect_stderr "in two parts"
+# shellcheck disable=SC2086
+expect_rc 2 "$STOCKTAKE" merge -q -r "$ROOT/rules/starter.rules" --districts "$S/districts.geojson" \
+    --district-key district_id --region-key region_id --reference "$S/reference_counts.csv" \
+    --fill draw --seed 7 -o "$TMP/bad.gpkg" "$TMP"/parts/*.gpkg
+expect_stderr "made with other rules"
+# shellcheck disable=SC2086
+expect_rc 2 "$STOCKTAKE" merge -q $opts --seed 8 -o "$TMP/bad.gpkg" "$TMP"/parts/*.gpkg
+expect_stderr "made with other options"
+expect_rc 2 "$STOCKTAKE" merge -q -o "$TMP/bad.gpkg" "$S/buildings_osm.geojson"
+# shellcheck disable=SC2086
+expect_rc 2 "$STOCKTAKE" run -q $opts --tile 16/1/1 --report "$TMP/r" -o "$TMP/bad.gpkg" $ins
+expect_stderr "no report of its own"
+expect_rc 2 "$STOCKTAKE" run -q --tile 16/99999/1 -o "$TMP/bad.gpkg" $ins
+expect_stderr "not a tile address"
+expect_rc 2 "$STOCKTAKE" run -q --bbox 10,0,5,1 -o "$TMP/bad.gpkg" $ins
+expect_stderr "not a box"
+[ ! -e "$TMP/bad.gpkg" ] || fail "a refused merge or part left $TMP/bad.gpkg"
+exit 0
