@@ -68,7 +68,8 @@ expect_balanced "$TMP/m/merged.gpkg" "$OSM" "$CAD"
 
 # The --sshlogin path: two "hosts" reached through a stand-in ssh that runs
 # GNU parallel's remote command here (no cluster in the tests; this checks
-# the quoting of the remote command and its working folder, not ssh).
+# the quoting of the remote command and its working folder, given relative
+# input paths; not ssh itself).
 cat >"$TMP/ssh" <<'END'
 #!/bin/sh
 while [ $# -gt 0 ]; do case $1 in -l | -p | -o | -i) shift 2 ;; -*) shift ;; *) break ;; esac; done
@@ -86,7 +87,12 @@ rc=$?
 [ "$rc" -eq "$single_rc" ] || { cat "$TMP/stderr" >&2; fail "run-tiles -S exited $rc"; }
 [ "$(sort -u "$TMP/ssh.hosts" | tr '\n' ' ')" = "host-a host-b " ] ||
     fail "run-tiles -S did not use both logins: $(sort -u "$TMP/ssh.hosts")"
-same "$TMP/single.gpkg" "$TMP/s/merged.gpkg" || fail "the merge of the -S run differs"
+# run_info records the inputs as given: compare with a single run given
+# the same relative paths
+(cd "$ROOT" && "$STOCKTAKE" run -q "$@" -o "$TMP/s/single.gpkg" samples/buildings_osm.geojson \
+    samples/buildings_cadastre.geojson) >"$TMP/stdout" 2>"$TMP/stderr"
+[ $? -eq "$single_rc" ] || { cat "$TMP/stderr" >&2; fail "single run from $ROOT"; }
+same "$TMP/s/single.gpkg" "$TMP/s/merged.gpkg" || fail "the merge of the -S run differs"
 
 # scripts/slurm-tiles.sbatch: its array tasks (two tiles a task) run one
 # after the other by hand with SLURM_ARRAY_TASK_ID set, then its merge
@@ -136,6 +142,12 @@ rc=$?
 [ "$rc" -eq 2 ] || { cat "$TMP/stderr" >&2; fail "a failing tile with --parts: exit $rc"; }
 expect_stderr "--parts $TMP/parts --resume"
 [ ! -e "$TMP/f/out.gpkg" ] || fail "a failing tile wrote the output"
+# the failure stopped the job: no tile started after it (at most the 3
+# running beside it could have ended first), and no temporary part is left
+n=$(find "$TMP/parts" -name '*.gpkg' | wc -l)
+[ "$n" -le 3 ] || fail "$n parts written after a tile failed: the job went on"
+[ "$(find "$TMP/parts" -type f ! -name '*.gpkg' ! -name joblog ! -name tiles.txt | wc -l)" -eq 0 ] ||
+    { ls -A "$TMP/parts" >&2; fail "the stopped tiles left files"; }
 STOCKTAKE=$STOCKTAKE sh "$RT" -z $Z -P 3 -o "$TMP/f/out.gpkg" --parts "$TMP/parts" --resume \
     "$OSM" "$CAD" -- "$@" >"$TMP/stdout" 2>"$TMP/stderr"
 rc=$?
