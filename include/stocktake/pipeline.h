@@ -115,6 +115,8 @@ typedef struct st_run_result {
                                     audit's polygons point into */
     char *summary;               /* owned: the terminal summary (report.h) for
                                     the CLI to print, or NULL */
+    struct st_strtab *strings;   /* owned, or NULL: after a merge, the text
+                                    the codes above point into */
 } st_run_result;
 
 /*

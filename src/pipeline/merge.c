@@ -256,6 +256,8 @@ st_status st_stage_read_parts(run_state *s)
     for (size_t k = 0; rc == ST_OK && k < s->opt->ninputs; k++)
         rc = read_part(s, k, &c, &sh);
     st_free(sh.bids);
+    st_free(s->shared);   /* no use once read: features get sorted */
+    s->shared = NULL;
     st_run_context_free(&c);
     if (rc == ST_OK)
         rc = settle(s);

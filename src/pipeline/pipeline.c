@@ -313,9 +313,7 @@ st_status st_run_state_finish(run_state *s, st_status rc, st_run_result **out)
         return rc;
     }
     *out = s->res;
-    /* merge's features are freed above; its strings may be freed now,
-    ** since the result holds none of them */
-    st_strtab_free(s->strings);
+    s->res->strings = s->strings;   /* merge: finding codes point into it */
     return ST_OK;
 }
 
@@ -361,6 +359,7 @@ void st_run_result_free(st_run_result *r)
         st_free(r->outputs[i]);
     st_free(r->outputs);
     st_free(r->summary);
+    st_strtab_free(r->strings);
     st_free(r);
 }
 

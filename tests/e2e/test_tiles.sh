@@ -72,6 +72,16 @@ expect_stderr "made with other rules"
 expect_rc 2 "$STOCKTAKE" merge -q $opts --seed 8 -o "$TMP/bad.gpkg" "$TMP"/parts/*.gpkg
 expect_stderr "made with other options"
 expect_rc 2 "$STOCKTAKE" merge -q -o "$TMP/bad.gpkg" "$S/buildings_osm.geojson"
+expect_stderr "buildings_osm.geojson"
+# a damaged part: every feature blob cut short
+cp "$first" "$TMP/damaged.gpkg"
+sqlite3 "$TMP/damaged.gpkg" "UPDATE part_features SET data = substr(data, 1, 20)" ||
+    fail "could not damage a part"
+before_part=$(sha "$TMP/damaged.gpkg")
+# shellcheck disable=SC2086
+expect_rc 2 "$STOCKTAKE" merge -q $opts -o "$TMP/bad.gpkg" "$TMP/damaged.gpkg" $rest
+expect_stderr "damaged.gpkg"
+[ "$(sha "$TMP/damaged.gpkg")" = "$before_part" ] || fail "merge changed a part"
 # shellcheck disable=SC2086
 expect_rc 2 "$STOCKTAKE" run -q $opts --tile 16/1/1 --report "$TMP/r" -o "$TMP/bad.gpkg" $ins
 expect_stderr "no report of its own"
