@@ -8,9 +8,11 @@ BUILD_PKGS="gcc make pkg-config libgeos-dev libproj-dev libshp-dev
 libsqlite3-dev libpcre2-dev libyajl-dev libcsv-dev libcmocka-dev"
 # Tests: outside references (GDAL, PROJ tools, shapely/pyproj/geopandas
 # on Debian's python), the sqlite3 shell, JSON Schema validation of
-# report.json, and a real browser (headless Chromium) for report.html.
+# report.json, a real browser (headless Chromium) for report.html, and
+# GNU parallel for scripts/run-tiles.sh (a job run tile by tile).
 TEST_PKGS="gdal-bin python3-gdal proj-bin python3-pyproj python3-shapely
-python3-geopandas shapelib sqlite3 valgrind time python3-jsonschema chromium"
+python3-geopandas shapelib sqlite3 valgrind time python3-jsonschema chromium
+parallel"
 # Fuzzing (`make fuzz` only, asked for with `deps.sh fuzz`): clang and its
 # runtime libraries (libFuzzer, sanitizers) for the default clang version.
 FUZZ_PKGS="clang libclang-rt-dev"
