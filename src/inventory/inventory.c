@@ -232,13 +232,13 @@ st_status st_inventory_open(const char *path, const st_inventory_layer *layers,
 
 /* Put a number into the scratch buffer and return where it starts; the
 ** buffer is cleared once per row, so offsets stay valid for the row. */
-static size_t scratch_num(st_inventory *inv, const char *fmt, double v, st_status *rc)
+static size_t scratch_num(st_inventory *inv, int decimals, double v, st_status *rc)
 {
     size_t at = inv->scratch.len;
+    char text[ST_FMT_FIXED_MAX];
+    size_t n = st_fmt_fixed(text, v, decimals);   /* printf's "%.<decimals>f" */
     if (*rc == ST_OK)
-        *rc = st_buf_printf(&inv->scratch, fmt, v);
-    if (*rc == ST_OK)
-        *rc = st_buf_append(&inv->scratch, "", 1);   /* keep the NUL */
+        *rc = st_buf_append(&inv->scratch, text, n + 1);   /* with the NUL */
     return at;
 }
 
@@ -278,9 +278,9 @@ st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,
         const st_feature *f = fs[k];
         memset(inv->row, 0, inv->rowcap * sizeof *inv->row);
         st_buf_clear(&inv->scratch);
-        size_t bid = scratch_num(inv, "%.0f", (double)f->bid, &rc);
-        size_t area = scratch_num(inv, "%.2f", f->area_m2, &rc);
-        size_t per = scratch_num(inv, "%.2f", f->perimeter_m, &rc);
+        size_t bid = scratch_num(inv, 0, (double)f->bid, &rc);
+        size_t area = scratch_num(inv, 2, f->area_m2, &rc);
+        size_t per = scratch_num(inv, 2, f->perimeter_m, &rc);
         size_t flags = inv->scratch.len;
         if (rc == ST_OK)
             rc = st_footprint_flag_names(f->flags, &inv->scratch);
@@ -319,8 +319,8 @@ st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs,
         const st_feature *f = fs[k];
         memset(inv->row, 0, inv->rowcap * sizeof *inv->row);
         st_buf_clear(&inv->scratch);
-        size_t bid = scratch_num(inv, "%.0f", (double)f->bid, &rc);
-        size_t dup = scratch_num(inv, "%.0f", (double)f->duplicate_of, &rc);
+        size_t bid = scratch_num(inv, 0, (double)f->bid, &rc);
+        size_t dup = scratch_num(inv, 0, (double)f->duplicate_of, &rc);
         if (rc != ST_OK)
             break;
         inv->row[0] = inv->scratch.data + bid;
@@ -357,7 +357,7 @@ st_status st_inventory_write_findings(st_inventory *inv, const st_findings *fl)
     for (size_t k = 0; rc == ST_OK && k < fl->count; k++) {
         const st_finding *g = &fl->items[k];
         st_buf_clear(&inv->scratch);
-        size_t bid = scratch_num(inv, "%.0f", (double)g->bid, &rc);
+        size_t bid = scratch_num(inv, 0, (double)g->bid, &rc);
         st_geom_clear(&point.geom);
         if (rc == ST_OK && isfinite(g->x) && isfinite(g->y)) {
             point.geom.type = ST_GEOM_POINT;
@@ -453,11 +453,10 @@ static st_status write_district(st_inventory *inv, st_writer *w, const st_audit 
                            (double)d->findings[ST_SEV_ERROR],
                            (double)d->findings[ST_SEV_WARNING],
                            (double)d->findings[ST_SEV_NOTE]};
-    static const char *const fmts[] = {"%.0f", "%.0f", "%.0f", "%.0f", "%.2f", "%.2f",
-                                       "%.0f", "%.0f", "%.4f", "%.0f", "%.0f", "%.0f"};
+    static const int decimals[] = {0, 0, 0, 0, 2, 2, 0, 0, 4, 0, 0, 0};
     st_buf_clear(&inv->scratch);
     for (size_t i = 0; i < 12; i++)
-        at[i] = scratch_num(inv, fmts[i], nums[i], &rc);
+        at[i] = scratch_num(inv, decimals[i], nums[i], &rc);
     size_t nshare = (size_t)a->nfields * ST_NPROV;
     size_t *sat = st_malloc((nshare ? nshare : 1) * sizeof *sat);
     if (!sat)
@@ -465,7 +464,7 @@ static st_status write_district(st_inventory *inv, st_writer *w, const st_audit 
     for (uint32_t f = 0; f < a->nfields; f++)
         for (int p = ST_NPROV - 1; p >= 0; p--)
             sat[(size_t)f * ST_NPROV + (size_t)(ST_NPROV - 1 - p)] =
-                scratch_num(inv, "%.4f",
+                scratch_num(inv, 4,
                             d->buildings ? (double)d->fields[f].by_prov[p] / (double)d->buildings
                                          : 0.0, &rc);
     if (rc == ST_OK) {

@@ -552,6 +552,8 @@ static int parse_integer(const char *v, long long *out)
 static int parse_real(const char *v, double *out)
 {
     char *end;
+    if (st_parse_decimal_fast(v, out))   /* strtod's result, without strtod */
+        return 1;
     if (!v[0] || isspace((unsigned char)v[0]))
         return 0;
     errno = 0;
