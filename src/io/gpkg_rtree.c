@@ -129,9 +129,13 @@ static void put_be_float(unsigned char *p, float f)
         p[i] = (unsigned char)(u & 0xFF);
 }
 
+/* <name>_rowid rows a statement inserts (one statement a row cost more
+** than the row; the table is the same either way). */
+#define ROWIDS_PER_INSERT 64
+
 typedef struct loader {
     sqlite3 *db;
-    sqlite3_stmt *node, *parent, *rowid;
+    sqlite3_stmt *node, *parent, *rowid, *rowids;   /* rowids: ROWIDS_PER_INSERT rows */
     char *err;
     size_t errlen;
 } loader;
@@ -199,22 +203,76 @@ static int by_rowid(const void *a, const void *b)
     return (p->rowid > q->rowid) - (p->rowid < q->rowid);
 }
 
-/* <name>_rowid rows in rowid order (a B-tree likes its keys ascending). */
+/* The (rowid, leaf node) pairs of the leaves in rowid order. Rows are
+** numbered densely (fids of one layer), so a table indexed by rowid sorts
+** them in linear time; a sparse or odd range falls back to qsort. */
+static rowid_pair *rowids_in_order(const level *leaves, size_t cap)
+{
+    size_t n = leaves->n;
+    rowid_pair *v = st_malloc(n * sizeof *v);
+    if (!v)
+        return NULL;
+    int64_t lo = INT64_MAX, hi = INT64_MIN;
+    for (size_t i = 0; i < n; i++) {
+        int64_t id = leaves->items[i].id;
+        lo = id < lo ? id : lo;
+        hi = id > hi ? id : hi;
+    }
+    uint64_t range = (uint64_t)hi - (uint64_t)lo + 1;
+    int64_t *node = range <= 2 * (uint64_t)n ? st_calloc((size_t)range, sizeof *node) : NULL;
+    int dense = node != NULL;
+    for (size_t i = 0; dense && i < n; i++) {
+        int64_t *at = &node[leaves->items[i].id - lo];
+        dense = *at == 0;   /* node numbers start at 1; a repeated id: sort */
+        *at = leaves->base + (int64_t)(i / cap);
+    }
+    if (dense) {
+        size_t k = 0;
+        for (uint64_t r = 0; r < range; r++)
+            if (node[r])
+                v[k++] = (rowid_pair){lo + (int64_t)r, node[r]};
+    } else {
+        for (size_t i = 0; i < n; i++)
+            v[i] = (rowid_pair){leaves->items[i].id, leaves->base + (int64_t)(i / cap)};
+        qsort(v, n, sizeof *v, by_rowid);
+    }
+    st_free(node);
+    return v;
+}
+
+/* <name>_rowid rows in rowid order (a B-tree likes its keys ascending),
+** ROWIDS_PER_INSERT a statement while that many are left. */
 static st_status write_rowids(loader *L, const level *leaves, size_t cap)
 {
-    rowid_pair *v = st_malloc(leaves->n * sizeof *v);
+    rowid_pair *v = rowids_in_order(leaves, cap);
     if (!v)
         return ST_ERR_NOMEM;
-    for (size_t i = 0; i < leaves->n; i++)
-        v[i] = (rowid_pair){leaves->items[i].id, leaves->base + (int64_t)(i / cap)};
-    qsort(v, leaves->n, sizeof *v, by_rowid);
     st_status rc = ST_OK;
-    for (size_t i = 0; rc == ST_OK && i < leaves->n; i++) {
-        sqlite3_bind_int64(L->rowid, 1, v[i].rowid);
-        sqlite3_bind_int64(L->rowid, 2, v[i].node);
-        rc = step(L, L->rowid, "writing an R-tree rowid");
+    for (size_t i = 0; rc == ST_OK && i < leaves->n;) {
+        size_t m = leaves->n - i >= ROWIDS_PER_INSERT ? ROWIDS_PER_INSERT : 1;
+        sqlite3_stmt *s = m > 1 ? L->rowids : L->rowid;
+        for (size_t k = 0; k < m; k++) {
+            sqlite3_bind_int64(s, (int)(2 * k + 1), v[i + k].rowid);
+            sqlite3_bind_int64(s, (int)(2 * k + 2), v[i + k].node);
+        }
+        rc = step(L, s, "writing an R-tree rowid");
+        i += m;
     }
     st_free(v);
+    return rc;
+}
+
+/* The insert of ROWIDS_PER_INSERT rowid rows. */
+static st_status prepare_rowids(loader *L, const char *name)
+{
+    st_buf sql;
+    st_buf_init(&sql, 0);
+    st_status rc = st_buf_puts(&sql, "INSERT INTO \"%w_rowid\" (rowid, nodeno) VALUES (?, ?)");
+    for (int i = 1; rc == ST_OK && i < ROWIDS_PER_INSERT; i++)
+        rc = st_buf_puts(&sql, ", (?, ?)");
+    if (rc == ST_OK)
+        rc = prepare(L, sql.data, name, &L->rowids);
+    st_buf_free(&sql);
     return rc;
 }
 
@@ -271,7 +329,7 @@ st_status st_gpkg_rtree_load(sqlite3 *db, const char *name, st_gpkg_box *boxes, 
 {
     if (n == 0)
         return ST_OK;   /* the empty root the module made is the whole tree */
-    loader L = {db, NULL, NULL, NULL, err, errlen};
+    loader L = {db, NULL, NULL, NULL, NULL, err, errlen};
     size_t node_bytes = 0;
     st_status rc = node_size(&L, name, &node_bytes);
     size_t cap = (node_bytes - 4) / CELL_BYTES;
@@ -305,10 +363,13 @@ st_status st_gpkg_rtree_load(sqlite3 *db, const char *name, st_gpkg_box *boxes, 
     if (rc == ST_OK)
         rc = prepare(&L, "INSERT INTO \"%w_rowid\" (rowid, nodeno) VALUES (?, ?)", name, &L.rowid);
     if (rc == ST_OK)
+        rc = prepare_rowids(&L, name);
+    if (rc == ST_OK)
         rc = write_levels(&L, lv, nlv, cap, node_bytes);
     sqlite3_finalize(L.node);
     sqlite3_finalize(L.parent);
     sqlite3_finalize(L.rowid);
+    sqlite3_finalize(L.rowids);
     for (int d = 0; d < nlv; d++)
         st_free(lv[d].items);
     return rc;
