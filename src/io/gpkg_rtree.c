@@ -219,8 +219,12 @@ static rowid_pair *rowids_in_order(const level *leaves, size_t cap)
         hi = id > hi ? id : hi;
     }
     uint64_t range = (uint64_t)hi - (uint64_t)lo + 1;
-    int64_t *node = range <= 2 * (uint64_t)n ? st_calloc((size_t)range, sizeof *node) : NULL;
-    int dense = node != NULL;
+    int dense = range <= 2 * (uint64_t)n;
+    int64_t *node = dense ? st_calloc((size_t)range, sizeof *node) : NULL;
+    if (dense && !node) {
+        st_free(v);
+        return NULL;
+    }
     for (size_t i = 0; dense && i < n; i++) {
         int64_t *at = &node[leaves->items[i].id - lo];
         dense = *at == 0;   /* node numbers start at 1; a repeated id: sort */

@@ -953,17 +953,17 @@ static st_status write_alone(st_writer *w, gpkg_ring *ring)
     return rc;
 }
 
-/* Start up to 'want' helpers; returns how many started. One that cannot
-** get its memory or its thread is not an error: fewer helpers do the work,
-** or none, and then this thread does it alone. */
+/* Start up to 'want' helpers; returns how many started. A thread that
+** cannot be started is not an error: fewer helpers do the work, or none,
+** and then this thread does it alone. No memory is (*rc). */
 static unsigned start_helpers(gpkg_ring *ring, gpkg_helper *h, unsigned want,
-                              uint32_t nvalues)
+                              uint32_t nvalues, st_status *rc)
 {
     unsigned started = 0;
     for (unsigned i = 0; i < want; i++) {
         h[i].ring = ring;
-        if (maker_init(&h[i].maker, nvalues) != ST_OK ||
-            pthread_create(&h[i].tid, NULL, helper_main, &h[i]) != 0) {
+        *rc = maker_init(&h[i].maker, nvalues);
+        if (*rc != ST_OK || pthread_create(&h[i].tid, NULL, helper_main, &h[i]) != 0) {
             maker_free(&h[i].maker);
             break;
         }
@@ -981,8 +981,10 @@ static st_status write_threaded(st_writer *w, gpkg_ring *ring, unsigned want)
         pthread_mutex_destroy(&ring->lock);
         return write_alone(w, ring);
     }
-    unsigned started = start_helpers(ring, h, want, w->nfields);
-    st_status rc = started > 0 ? insert_from_ring(w, ring) : write_alone(w, ring);
+    st_status rc = ST_OK;
+    unsigned started = start_helpers(ring, h, want, w->nfields, &rc);
+    if (rc == ST_OK)
+        rc = started > 0 ? insert_from_ring(w, ring) : write_alone(w, ring);
     pthread_mutex_lock(&ring->lock);
     ring->stop = 1;
     pthread_cond_broadcast(&ring->changed);

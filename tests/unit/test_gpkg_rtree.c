@@ -8,7 +8,9 @@
 **     whose envelopes meet the window, counted by brute force here;
 **   - the module can go on inserting into the packed tree (splits) and
 **     deleting from it, and rtreecheck() still says 'ok';
-**   - the outward rounding to float32 contains every double.
+**   - the outward rounding to float32 contains every double;
+**   - boxes handed over in any order, with dense or sparse ids, load into a
+**     tree that rtreecheck() accepts and where every id finds its box.
 */
 #include <setjmp.h>
 #include <stdarg.h>
@@ -224,6 +226,54 @@ static void test_empty_layer(void **state)
     unlink(path);
 }
 
+/* Load n boxes with ids id(i) in a scrambled order straight into an rtree
+** table; the tree passes rtreecheck() and every id finds its own box. */
+static void load_ids(size_t n, int64_t stride)
+{
+    sqlite3 *db;
+    assert_int_equal(sqlite3_open(":memory:", &db), SQLITE_OK);
+    assert_int_equal(sqlite3_exec(db, "CREATE VIRTUAL TABLE rtree_squares_geom USING "
+                                      "rtree(id, minx, maxx, miny, maxy)", NULL, NULL, NULL),
+                     SQLITE_OK);
+    st_gpkg_box *boxes = calloc(n, sizeof *boxes);
+    assert_non_null(boxes);
+    uint64_t seed = 11 + n;
+    for (size_t i = 0; i < n; i++) {
+        size_t j = (i * 7919) % n;   /* n is not a multiple of 7919: a permutation */
+        float x = (float)(10 * next_unit(&seed)), y = (float)(10 * next_unit(&seed));
+        boxes[j] = (st_gpkg_box){1 + (int64_t)i * stride, {x, x + 0.01f, y, y + 0.02f}};
+    }
+    char err[256] = "";
+    assert_int_equal(st_gpkg_rtree_load(db, "rtree_squares_geom", boxes, n, err, sizeof err),
+                     ST_OK);
+    expect_rtreecheck_ok(db);
+    assert_int_equal(scalar(db, "SELECT count(*) FROM rtree_squares_geom_rowid"), (long long)n);
+    sqlite3_stmt *s;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT minx, maxx, miny, maxy FROM "
+                                            "rtree_squares_geom WHERE id = ?", -1, &s, NULL),
+                     SQLITE_OK);
+    for (size_t j = 0; j < n; j++) {
+        sqlite3_bind_int64(s, 1, boxes[j].id);
+        assert_int_equal(sqlite3_step(s), SQLITE_ROW);
+        for (int k = 0; k < 4; k++)
+            assert_true((float)sqlite3_column_double(s, k) == boxes[j].b[k]);
+        sqlite3_reset(s);
+    }
+    sqlite3_finalize(s);
+    free(boxes);
+    sqlite3_close(db);
+}
+
+/* The _rowid rows are written in rowid order, found in linear time for
+** dense ids (one layer's fids) and by sorting for sparse ones. */
+static void test_dense_and_sparse_ids(void **state)
+{
+    (void)state;
+    load_ids(3001, 1);      /* dense: ids 1..3001 */
+    load_ids(3001, 5);      /* sparse: range 5 times the count */
+    load_ids(63, 1);        /* fewer than one statement's rows */
+}
+
 static void test_rounding_contains(void **state)
 {
     (void)state;
@@ -245,6 +295,7 @@ int main(void)
         cmocka_unit_test(test_two_levels),
         cmocka_unit_test(test_three_levels),
         cmocka_unit_test(test_empty_layer),
+        cmocka_unit_test(test_dense_and_sparse_ids),
         cmocka_unit_test(test_rounding_contains),
     };
     return cmocka_run_group_tests_name("gpkg_rtree", tests, NULL, NULL);
