@@ -61,22 +61,102 @@ float st_gpkg_rtree_up(double d)
     return (double)f < d ? nextafterf(f, INFINITY) : f;
 }
 
-static int by_x(const void *a, const void *b)
+/* 1 if p sorts before q on 'axis' (0: x, 2: y): by the float sum of the
+** two bounds (twice the centre), then by id. Ids are unique in a level, so
+** the order is total and any correct sort gives the same one. */
+static inline int before(const item *p, const item *q, int axis)
 {
-    const item *p = a, *q = b;
-    float x = p->b[0] + p->b[1], y = q->b[0] + q->b[1];
+    float x = p->b[axis] + p->b[axis + 1], y = q->b[axis] + q->b[axis + 1];
     if (x != y)
-        return x < y ? -1 : 1;
-    return (p->id > q->id) - (p->id < q->id);
+        return x < y;
+    return p->id < q->id;
 }
 
-static int by_y(const void *a, const void *b)
+static inline void swap_items(item *a, item *b)
 {
-    const item *p = a, *q = b;
-    float x = p->b[2] + p->b[3], y = q->b[2] + q->b[3];
-    if (x != y)
-        return x < y ? -1 : 1;
-    return (p->id > q->id) - (p->id < q->id);
+    item t = *a;
+    *a = *b;
+    *b = t;
+}
+
+static void sift_down(item *v, size_t root, size_t n, int axis)
+{
+    for (size_t child; (child = 2 * root + 1) < n; root = child) {
+        if (child + 1 < n && before(&v[child], &v[child + 1], axis))
+            child++;
+        if (!before(&v[root], &v[child], axis))
+            return;
+        swap_items(&v[root], &v[child]);
+    }
+}
+
+static void heap_sort(item *v, size_t n, int axis)
+{
+    for (size_t i = n / 2; i-- > 0;)
+        sift_down(v, i, n, axis);
+    for (size_t end = n; end-- > 1;) {
+        swap_items(&v[0], &v[end]);
+        sift_down(v, 0, end, axis);
+    }
+}
+
+/* Introsort: quicksort (median of three, Hoare's partition) down to short
+** runs finished by insertion, heapsort past a depth limit. In place, with
+** the comparison inlined: several times faster than qsort() here, and
+** without its temporary copy of the array (the write's peak memory). */
+static void sort_items(item *v, size_t n, int axis, int depth)
+{
+    while (n > 16) {
+        if (depth-- == 0) {
+            heap_sort(v, n, axis);
+            return;
+        }
+        size_t m = n / 2;
+        if (before(&v[m], &v[0], axis))
+            swap_items(&v[m], &v[0]);
+        if (before(&v[n - 1], &v[m], axis)) {
+            swap_items(&v[n - 1], &v[m]);
+            if (before(&v[m], &v[0], axis))
+                swap_items(&v[m], &v[0]);
+        }
+        item pivot = v[m];
+        size_t i = 0, j = n - 1;
+        for (;;) {
+            while (before(&v[i], &pivot, axis))
+                i++;
+            while (before(&pivot, &v[j], axis))
+                j--;
+            if (i >= j)
+                break;
+            swap_items(&v[i++], &v[j--]);
+        }
+        /* [0, j] before or at the pivot, [j + 1, n) after: recurse into
+        ** the smaller side, loop on the larger */
+        size_t left = j + 1;
+        if (left < n - left) {
+            sort_items(v, left, axis, depth);
+            v += left;
+            n -= left;
+        } else {
+            sort_items(v + left, n - left, axis, depth);
+            n = left;
+        }
+    }
+    for (size_t i = 1; i < n; i++) {
+        item t = v[i];
+        size_t k = i;
+        for (; k > 0 && before(&t, &v[k - 1], axis); k--)
+            v[k] = v[k - 1];
+        v[k] = t;
+    }
+}
+
+static void sort_on(item *v, size_t n, int axis)
+{
+    int depth = 0;
+    for (size_t k = n; k > 1; k >>= 1)
+        depth += 2;
+    sort_items(v, n, axis, depth);
 }
 
 /* Sort-tile-recursive order: vertical slices by x, each sorted by y, so
@@ -86,9 +166,9 @@ static void str_order(item *v, size_t n, size_t cap)
     size_t nodes = (n + cap - 1) / cap;
     size_t slices = (size_t)ceil(sqrt((double)nodes));
     size_t per_slice = slices * cap;
-    qsort(v, n, sizeof *v, by_x);
+    sort_on(v, n, 0);
     for (size_t s = 0; s < n; s += per_slice)
-        qsort(v + s, n - s < per_slice ? n - s : per_slice, sizeof *v, by_y);
+        sort_on(v + s, n - s < per_slice ? n - s : per_slice, 2);
 }
 
 /* The next level up: one item per node of 'below', its box the union. */
