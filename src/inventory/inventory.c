@@ -8,6 +8,11 @@
 **         st_inventory_sibling_path).
 ** Errors: whatever the writers report; nothing is renamed into place
 **         before st_inventory_commit, so a failed run leaves nothing.
+** Threads: the rows of buildings, set_aside, findings and districts are
+**         filled on demand (st_writer_write_rows), on the GeoPackage
+**         writer's helper threads when st_inventory_set_threads asks for
+**         them: the fills only read the features and the inventory, and
+**         write into the row they are given.
 */
 #include <math.h>
 #include <stdio.h>
