@@ -177,4 +177,17 @@ size_t st_utf8_valid_prefix(const char *s, size_t n);
 /* Returns owned copy of s[0..n) with invalid UTF-8 bytes replaced by U+FFFD. */
 char *st_utf8_sanitize(const char *s, size_t n);
 
+/* ---- decimal numbers (core/numfmt.c) ----------------------------------- */
+
+#define ST_FMT_MAX_DECIMALS 15
+#define ST_FMT_FIXED_MAX 352   /* "%.15f" of -DBL_MAX and the NUL */
+/* Write v into out (ST_FMT_FIXED_MAX bytes) as printf("%.*f", decimals, v)
+** would, character for character, and return the length; much faster for
+** ordinary non-negative values. decimals is clamped to 0..15. */
+size_t st_fmt_fixed(char *out, double v, int decimals);
+/* If s is a plain decimal (-?digits(.digits)?, at most 15 digits in all),
+** set *out to what strtod(s) gives and return 1; otherwise return 0 and
+** leave *out alone (the caller parses it the slow way). */
+int st_parse_decimal_fast(const char *s, double *out);
+
 #endif

@@ -53,6 +53,7 @@ typedef struct st_geom {
 
 void st_geom_init(st_geom *g);        /* ST_GEOM_NULL, no memory */
 void st_geom_clear(st_geom *g);       /* frees arrays, back to NULL type */
+void st_geom_reset(st_geom *g);       /* no coordinates, NULL type; keeps arrays */
 int st_geom_is_empty(const st_geom *g);
 /* Builder: start a part, start a ring in the current part, add a vertex. */
 st_status st_geom_begin_part(st_geom *g) ST_MUST_CHECK;

@@ -53,6 +53,10 @@ st_status st_inventory_open(const char *path, const st_inventory_layer *layers,
                             uint32_t nschema, st_diags *diags,
                             st_inventory **out) ST_MUST_CHECK;
 
+/* Threads that prepare the rows of the buildings, set_aside, findings and
+** districts layers of a GeoPackage (blob encoding, numbers) while one
+** thread inserts them: 0 or 1 none. The file is the same for any number. */
+void st_inventory_set_threads(st_inventory *inv, unsigned nthreads);
 /* Kept buildings, in the order given; 'district_names' (indexed by
 ** f->district, may be NULL) names each building's district. */
 st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,

@@ -96,6 +96,40 @@ st_status st_writer_begin_layer(st_writer *w, const char *name,
 /* Write one feature (borrowed); values[i] goes to field i of the layer. */
 st_status st_writer_write(st_writer *w, const st_feature *f) ST_MUST_CHECK;
 st_status st_writer_end_layer(st_writer *w) ST_MUST_CHECK;
+
+/*
+** A row of a layer being written, as a row source fills it for
+** st_writer_write_rows. Before each fill: 'f' is zeroed except f.values,
+** an array of the layer's field count of NULLs (f.nvalues set), and 'text'
+** is empty. The fill sets f.geom (a borrowed view), f.values[i] (borrowed
+** strings, or strings it puts into 'text': they only need to last until
+** the fill returns, the row is taken in at once) and f.bid. 'point' is a
+** geometry the fill may build a point into (st_geom_reset first): it keeps
+** its memory from row to row.
+*/
+typedef struct st_row {
+    st_feature f;
+    st_buf text;
+    st_geom point;
+} st_row;
+
+/* Fill row k (0-based) of the rows written by st_writer_write_rows. With
+** more than one thread it runs on several threads at once for different
+** rows: it may only read what the rows share and write through 'row'. */
+typedef st_status (*st_row_fill)(void *ctx, size_t k, st_row *row);
+
+/*
+** Write rows 0 .. n-1 of the current layer, in that order, as
+** st_writer_write would write each one. With nthreads > 1, a GeoPackage
+** fills and encodes the rows (geometry blobs, numbers from text) on
+** nthreads helper threads while this thread inserts them; the file is the
+** same byte for byte for any nthreads. Other formats fill and write in
+** this thread. The first failing row stops the writing, with the same
+** status and diagnostic whatever nthreads.
+*/
+st_status st_writer_write_rows(st_writer *w, size_t n, st_row_fill fill, void *ctx,
+                               unsigned nthreads) ST_MUST_CHECK;
+
 /* Finish and rename into place. After a failed commit nothing is at 'path'. */
 st_status st_writer_commit(st_writer *w) ST_MUST_CHECK;
 /* Report of what the format changed, e.g. Shapefile field names shortened:

@@ -31,6 +31,13 @@ void st_geom_clear(st_geom *g)
     st_geom_init(g);
 }
 
+void st_geom_reset(st_geom *g)
+{
+    g->type = ST_GEOM_NULL;
+    g->has_z = g->has_m = 0;
+    g->nparts = g->nrings = g->ncoords = 0;
+}
+
 int st_geom_is_empty(const st_geom *g)
 {
     return g->type == ST_GEOM_NULL || g->ncoords == 0;

@@ -249,7 +249,10 @@ st_status st_footprint_flag_names(uint32_t flags, st_buf *out)
     for (size_t b = 0; rc == ST_OK && b < sizeof flag_names / sizeof flag_names[0]; b++) {
         if (!(flags & (1u << b)))
             continue;
-        rc = st_buf_printf(out, "%s%s", first ? "" : ",", flag_names[b]);
+        if (!first)
+            rc = st_buf_append(out, ",", 1);
+        if (rc == ST_OK)
+            rc = st_buf_puts(out, flag_names[b]);
         first = 0;
     }
     return rc;

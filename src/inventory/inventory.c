@@ -8,6 +8,11 @@
 **         st_inventory_sibling_path).
 ** Errors: whatever the writers report; nothing is renamed into place
 **         before st_inventory_commit, so a failed run leaves nothing.
+** Threads: the rows of buildings, set_aside, findings and districts are
+**         filled on demand (st_writer_write_rows), on the GeoPackage
+**         writer's helper threads when st_inventory_set_threads asks for
+**         them: the fills only read the features and the inventory, and
+**         write into the row they are given.
 */
 #include <math.h>
 #include <stdio.h>
@@ -44,9 +49,7 @@ struct st_inventory {
     char **schema;                 /* schema field names, owned */
     uint32_t nschema;
     st_fields bfields, sfields;    /* output columns of the two feature layers */
-    char **row;                    /* scratch row, borrowed pointers */
-    size_t rowcap;
-    st_buf scratch;                /* numbers formatted for one row */
+    unsigned threads;              /* helpers of the GeoPackage writer (1: none) */
 };
 
 char *st_inventory_sibling_path(const char *path, const char *layer)
@@ -151,11 +154,7 @@ static st_status build_output_columns(st_inventory *inv)
         rc = add_cols(&inv->sfields, set_aside_cols, N_SET_ASIDE_COLS);
     if (rc == ST_OK)
         rc = append_fields(&inv->sfields, &inv->source);
-    size_t need = inv->bfields.count > inv->sfields.count ? inv->bfields.count
-                                                          : inv->sfields.count;
-    inv->rowcap = need < 8 ? 8 : need;
-    inv->row = rc == ST_OK ? st_calloc(inv->rowcap, sizeof *inv->row) : NULL;
-    return rc != ST_OK ? rc : inv->row ? ST_OK : ST_ERR_NOMEM;
+    return rc;
 }
 
 static st_status open_writers(st_inventory *inv)
@@ -198,7 +197,7 @@ st_status st_inventory_open(const char *path, const st_inventory_layer *layers,
     if (!inv)
         return ST_ERR_NOMEM;
     inv->diags = diags;
-    st_buf_init(&inv->scratch, 0);
+    inv->threads = 1;
     inv->multi = st_str_ends_with_ci(path, ".gpkg");
     inv->path = st_strdup(path);
     inv->nlayers = nlayers;
@@ -230,23 +229,44 @@ st_status st_inventory_open(const char *path, const st_inventory_layer *layers,
     return ST_OK;
 }
 
-/* Put a number into the scratch buffer and return where it starts; the
-** buffer is cleared once per row, so offsets stay valid for the row. */
-static size_t scratch_num(st_inventory *inv, const char *fmt, double v, st_status *rc)
+void st_inventory_set_threads(st_inventory *inv, unsigned nthreads)
 {
-    size_t at = inv->scratch.len;
+    inv->threads = nthreads ? nthreads : 1;
+}
+
+/* Put a number into the row's text and return where it starts (offsets
+** stay valid while the text grows; pointers are taken once it is done). */
+static size_t text_num(st_buf *text, int decimals, double v, st_status *rc)
+{
+    size_t at = text->len;
+    char digits[ST_FMT_FIXED_MAX];
+    size_t n = st_fmt_fixed(digits, v, decimals);   /* printf's "%.<decimals>f" */
     if (*rc == ST_OK)
-        *rc = st_buf_printf(&inv->scratch, fmt, v);
-    if (*rc == ST_OK)
-        *rc = st_buf_append(&inv->scratch, "", 1);   /* keep the NUL */
+        *rc = st_buf_append(text, digits, n + 1);   /* with the NUL */
     return at;
 }
 
-static void place_source_values(st_inventory *inv, const st_feature *f, size_t first)
+static void place_source_values(const st_inventory *inv, const st_feature *f, char **row,
+                                size_t first)
 {
     uint32_t l = f->layer < inv->nlayers ? f->layer : 0;
     for (uint32_t i = 0; i < f->nvalues && i < inv->nfields[l]; i++)
-        inv->row[first + inv->colmap[l][i]] = f->values[i];
+        row[first + inv->colmap[l][i]] = f->values[i];
+}
+
+/* The row's geometry (a borrowed view of f's), source id and bid. */
+static void row_feature(st_feature *r, const st_feature *f, int promote)
+{
+    r->geom = f->geom;
+    /* set_aside keeps the geometry as read, also when a stage replaced it */
+    if (!promote && f->source_geom.type != ST_GEOM_NULL)
+        r->geom = f->source_geom;
+    /* buildings is declared MULTIPOLYGON: a polygon is written as a
+    ** one-part multipolygon (same arrays, another type tag). */
+    if (promote && r->geom.type == ST_GEOM_POLYGON)
+        r->geom.type = ST_GEOM_MULTIPOLYGON;
+    r->source_id = f->source_id;
+    r->bid = f->bid;
 }
 
 static st_status write_row(st_writer *w, const st_feature *f, char **row, uint32_t n,
@@ -254,89 +274,132 @@ static st_status write_row(st_writer *w, const st_feature *f, char **row, uint32
 {
     st_feature r;
     memset(&r, 0, sizeof r);
-    r.geom = f->geom;              /* borrowed view, never freed here */
-    /* set_aside keeps the geometry as read, also when a stage replaced it */
-    if (!promote && f->source_geom.type != ST_GEOM_NULL)
-        r.geom = f->source_geom;
-    /* buildings is declared MULTIPOLYGON: a polygon is written as a
-    ** one-part multipolygon (same arrays, another type tag). */
-    if (promote && r.geom.type == ST_GEOM_POLYGON)
-        r.geom.type = ST_GEOM_MULTIPOLYGON;
+    row_feature(&r, f, promote);
     r.values = row;
     r.nvalues = n;
-    r.source_id = f->source_id;
-    r.bid = f->bid;
     return st_writer_write(w, &r);
+}
+
+/* What the row fills of the two feature layers read (all shared, read
+** only: the fills run on several threads). */
+typedef struct feature_rows {
+    const st_inventory *inv;
+    st_feature *const *fs;
+    const char *const *district_names;
+} feature_rows;
+
+static const char *district_name(const feature_rows *fr, const st_feature *f)
+{
+    return f->district >= 0 && fr->district_names ? fr->district_names[f->district] : "none";
+}
+
+static st_status fill_building(void *ctx, size_t k, st_row *row)
+{
+    const feature_rows *fr = ctx;
+    const st_inventory *inv = fr->inv;
+    const st_feature *f = fr->fs[k];
+    st_buf *t = &row->text;
+    st_status rc = ST_OK;
+    size_t bid = text_num(t, 0, (double)f->bid, &rc);
+    size_t area = text_num(t, 2, f->area_m2, &rc);
+    size_t per = text_num(t, 2, f->perimeter_m, &rc);
+    size_t flags = t->len;
+    if (rc == ST_OK)
+        rc = st_footprint_flag_names(f->flags, t);
+    if (rc == ST_OK)
+        rc = st_buf_append(t, "", 1);
+    if (rc != ST_OK)
+        return rc;
+    char **v = row->f.values;
+    v[0] = t->data + bid;
+    v[1] = inv->layer_names[f->layer < inv->nlayers ? f->layer : 0];
+    v[2] = f->source_id;
+    v[3] = (char *)st_feature_status_name(f->status);
+    v[4] = t->data + area;
+    v[5] = t->data + per;
+    v[6] = t->data + flags;
+    v[7] = (char *)district_name(fr, f);
+    for (uint32_t s = 0; s < inv->nschema && s < f->nschema; s++) {
+        v[N_BUILDING_COLS + 3 * s] = f->schema[s].text;
+        v[N_BUILDING_COLS + 3 * s + 1] = (char *)st_provenance_name(f->schema[s].from);
+        v[N_BUILDING_COLS + 3 * s + 2] = (char *)f->schema[s].rule;
+    }
+    place_source_values(inv, f, v, N_BUILDING_COLS + 3 * (size_t)inv->nschema);
+    row_feature(&row->f, f, 1);
+    return ST_OK;
 }
 
 st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,
                                        size_t n, const char *const *district_names)
 {
     st_writer *w = writer_for(inv, L_BUILDINGS);
+    feature_rows fr = {inv, fs, district_names};
     st_status rc = st_writer_begin_layer(w, "buildings", &inv->bfields, ST_GEOM_MULTIPOLYGON);
-    for (size_t k = 0; rc == ST_OK && k < n; k++) {
-        const st_feature *f = fs[k];
-        memset(inv->row, 0, inv->rowcap * sizeof *inv->row);
-        st_buf_clear(&inv->scratch);
-        size_t bid = scratch_num(inv, "%.0f", (double)f->bid, &rc);
-        size_t area = scratch_num(inv, "%.2f", f->area_m2, &rc);
-        size_t per = scratch_num(inv, "%.2f", f->perimeter_m, &rc);
-        size_t flags = inv->scratch.len;
-        if (rc == ST_OK)
-            rc = st_footprint_flag_names(f->flags, &inv->scratch);
-        if (rc == ST_OK)
-            rc = st_buf_append(&inv->scratch, "", 1);
-        if (rc != ST_OK)
-            break;
-        inv->row[0] = inv->scratch.data + bid;
-        inv->row[1] = inv->layer_names[f->layer < inv->nlayers ? f->layer : 0];
-        inv->row[2] = f->source_id;
-        inv->row[3] = (char *)st_feature_status_name(f->status);
-        inv->row[4] = inv->scratch.data + area;
-        inv->row[5] = inv->scratch.data + per;
-        inv->row[6] = inv->scratch.data + flags;
-        inv->row[7] = (char *)(f->district >= 0 && district_names
-                                   ? district_names[f->district] : "none");
-        for (uint32_t s = 0; s < inv->nschema && s < f->nschema; s++) {
-            inv->row[N_BUILDING_COLS + 3 * s] = f->schema[s].text;
-            inv->row[N_BUILDING_COLS + 3 * s + 1] = (char *)st_provenance_name(f->schema[s].from);
-            inv->row[N_BUILDING_COLS + 3 * s + 2] = (char *)f->schema[s].rule;
-        }
-        place_source_values(inv, f, N_BUILDING_COLS + 3 * (size_t)inv->nschema);
-        rc = write_row(w, f, inv->row, inv->bfields.count, 1);
-    }
+    if (rc == ST_OK)
+        rc = st_writer_write_rows(w, n, fill_building, &fr, inv->threads);
     if (rc == ST_OK)
         rc = st_writer_end_layer(w);
     return rc;
+}
+
+static st_status fill_set_aside(void *ctx, size_t k, st_row *row)
+{
+    const feature_rows *fr = ctx;
+    const st_inventory *inv = fr->inv;
+    const st_feature *f = fr->fs[k];
+    st_buf *t = &row->text;
+    st_status rc = ST_OK;
+    size_t bid = text_num(t, 0, (double)f->bid, &rc);
+    size_t dup = text_num(t, 0, (double)f->duplicate_of, &rc);
+    if (rc != ST_OK)
+        return rc;
+    char **v = row->f.values;
+    v[0] = t->data + bid;
+    v[1] = inv->layer_names[f->layer < inv->nlayers ? f->layer : 0];
+    v[2] = f->source_id;
+    v[3] = (char *)st_feature_status_name(f->status);
+    v[4] = f->reason;
+    v[5] = f->status == ST_STATUS_DUPLICATE ? t->data + dup : NULL;
+    v[6] = (char *)district_name(fr, f);
+    place_source_values(inv, f, v, N_SET_ASIDE_COLS);
+    row_feature(&row->f, f, 0);
+    return ST_OK;
 }
 
 st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs, size_t n,
                                       const char *const *district_names)
 {
     st_writer *w = writer_for(inv, L_SET_ASIDE);
+    feature_rows fr = {inv, fs, district_names};
     st_status rc = st_writer_begin_layer(w, "set_aside", &inv->sfields, ST_GEOM_OTHER);
-    for (size_t k = 0; rc == ST_OK && k < n; k++) {
-        const st_feature *f = fs[k];
-        memset(inv->row, 0, inv->rowcap * sizeof *inv->row);
-        st_buf_clear(&inv->scratch);
-        size_t bid = scratch_num(inv, "%.0f", (double)f->bid, &rc);
-        size_t dup = scratch_num(inv, "%.0f", (double)f->duplicate_of, &rc);
-        if (rc != ST_OK)
-            break;
-        inv->row[0] = inv->scratch.data + bid;
-        inv->row[1] = inv->layer_names[f->layer < inv->nlayers ? f->layer : 0];
-        inv->row[2] = f->source_id;
-        inv->row[3] = (char *)st_feature_status_name(f->status);
-        inv->row[4] = f->reason;
-        inv->row[5] = f->status == ST_STATUS_DUPLICATE ? inv->scratch.data + dup : NULL;
-        inv->row[6] = (char *)(f->district >= 0 && district_names
-                                   ? district_names[f->district] : "none");
-        place_source_values(inv, f, N_SET_ASIDE_COLS);
-        rc = write_row(w, f, inv->row, inv->sfields.count, 0);
-    }
+    if (rc == ST_OK)
+        rc = st_writer_write_rows(w, n, fill_set_aside, &fr, inv->threads);
     if (rc == ST_OK)
         rc = st_writer_end_layer(w);
     return rc;
+}
+
+static st_status fill_finding(void *ctx, size_t k, st_row *row)
+{
+    const st_finding *g = &((const st_findings *)ctx)->items[k];
+    st_buf *t = &row->text;
+    st_status rc = ST_OK;
+    size_t bid = text_num(t, 0, (double)g->bid, &rc);
+    st_geom_reset(&row->point);
+    if (rc == ST_OK && isfinite(g->x) && isfinite(g->y)) {
+        row->point.type = ST_GEOM_POINT;
+        rc = st_geom_add_xy(&row->point, g->x, g->y);
+    }
+    if (rc != ST_OK)
+        return rc;
+    char **v = row->f.values;
+    v[0] = t->data + bid;
+    v[1] = (char *)g->code;
+    v[2] = (char *)st_severity_name(g->severity);
+    v[3] = g->message;
+    row->f.geom = row->point;   /* borrowed view */
+    row->f.bid = g->bid;
+    return ST_OK;
 }
 
 st_status st_inventory_write_findings(st_inventory *inv, const st_findings *fl)
@@ -352,25 +415,8 @@ st_status st_inventory_write_findings(st_inventory *inv, const st_findings *fl)
     st_writer *w = writer_for(inv, L_FINDINGS);
     if (rc == ST_OK)
         rc = st_writer_begin_layer(w, "findings", &fields, ST_GEOM_POINT);
-    st_feature point;
-    memset(&point, 0, sizeof point);
-    for (size_t k = 0; rc == ST_OK && k < fl->count; k++) {
-        const st_finding *g = &fl->items[k];
-        st_buf_clear(&inv->scratch);
-        size_t bid = scratch_num(inv, "%.0f", (double)g->bid, &rc);
-        st_geom_clear(&point.geom);
-        if (rc == ST_OK && isfinite(g->x) && isfinite(g->y)) {
-            point.geom.type = ST_GEOM_POINT;
-            rc = st_geom_add_xy(&point.geom, g->x, g->y);
-        }
-        if (rc != ST_OK)
-            break;
-        char *row[4] = {inv->scratch.data + bid, (char *)g->code,
-                        (char *)st_severity_name(g->severity), g->message};
-        point.bid = g->bid;
-        rc = write_row(w, &point, row, 4, 0);
-    }
-    st_geom_clear(&point.geom);
+    if (rc == ST_OK)
+        rc = st_writer_write_rows(w, fl->count, fill_finding, (void *)fl, inv->threads);
     if (rc == ST_OK)
         rc = st_writer_end_layer(w);
     st_fields_free(&fields);
@@ -442,55 +488,56 @@ static st_status district_fields(const st_audit *a, st_fields *out)
 
 #define N_DISTRICT_COLS 16
 
-static st_status write_district(st_inventory *inv, st_writer *w, const st_audit *a,
-                                const st_audit_district *d, char **row, uint32_t ncols)
+/* Row k of the districts layer: the audit's district k (borrowed, read
+** only). The numbers go into the row's text one after another, each with
+** its NUL, and are picked up in that order. */
+static st_status fill_district(void *ctx, size_t k, st_row *row)
 {
+    const st_audit *a = ctx;
+    const st_audit_district *d = &a->districts[k];
+    st_buf *t = &row->text;
     st_status rc = ST_OK;
-    size_t at[N_DISTRICT_COLS];
     const double nums[] = {(double)d->buildings, (double)d->repaired, (double)d->duplicate,
                            (double)d->rejected, d->footprint_m2, d->floor_m2,
                            (double)d->floor_known, (double)d->expected, d->ratio,
                            (double)d->findings[ST_SEV_ERROR],
                            (double)d->findings[ST_SEV_WARNING],
                            (double)d->findings[ST_SEV_NOTE]};
-    static const char *const fmts[] = {"%.0f", "%.0f", "%.0f", "%.0f", "%.2f", "%.2f",
-                                       "%.0f", "%.0f", "%.4f", "%.0f", "%.0f", "%.0f"};
-    st_buf_clear(&inv->scratch);
+    static const int decimals[] = {0, 0, 0, 0, 2, 2, 0, 0, 4, 0, 0, 0};
     for (size_t i = 0; i < 12; i++)
-        at[i] = scratch_num(inv, fmts[i], nums[i], &rc);
-    size_t nshare = (size_t)a->nfields * ST_NPROV;
-    size_t *sat = st_malloc((nshare ? nshare : 1) * sizeof *sat);
-    if (!sat)
-        return ST_ERR_NOMEM;
+        text_num(t, decimals[i], nums[i], &rc);
     for (uint32_t f = 0; f < a->nfields; f++)
         for (int p = ST_NPROV - 1; p >= 0; p--)
-            sat[(size_t)f * ST_NPROV + (size_t)(ST_NPROV - 1 - p)] =
-                scratch_num(inv, "%.4f",
-                            d->buildings ? (double)d->fields[f].by_prov[p] / (double)d->buildings
-                                         : 0.0, &rc);
-    if (rc == ST_OK) {
-        memset(row, 0, ncols * sizeof *row);
-        row[0] = d->key;
-        row[1] = d->region;
-        for (size_t i = 0; i < 8; i++)
-            row[2 + i] = inv->scratch.data + at[i];
-        if (d->expected < 0)
-            row[9] = NULL;
-        row[10] = isnan(d->ratio) ? NULL : inv->scratch.data + at[8];
-        row[11] = d->ref == ST_REF_NONE ? NULL : (char *)st_ref_state_name(d->ref);
-        for (size_t i = 0; i < 3; i++)
-            row[12 + i] = inv->scratch.data + at[9 + i];
-        row[15] = d->geom_repair;
-        for (size_t k = 0; k < nshare; k++)
-            row[N_DISTRICT_COLS + k] = d->buildings ? inv->scratch.data + sat[k] : NULL;
-        st_feature f;
-        memset(&f, 0, sizeof f);
-        if (d->geom)
-            f.geom = *d->geom;     /* borrowed view; write_row promotes a polygon */
-        rc = write_row(w, &f, row, ncols, 1);
+            text_num(t, 4,
+                     d->buildings ? (double)d->fields[f].by_prov[p] / (double)d->buildings
+                                  : 0.0, &rc);
+    if (rc != ST_OK)
+        return rc;
+    char *at[12];
+    char *next = t->data;
+    for (size_t i = 0; i < 12; i++, next += strlen(next) + 1)
+        at[i] = next;
+    char **v = row->f.values;
+    v[0] = d->key;
+    v[1] = d->region;
+    for (size_t i = 0; i < 8; i++)
+        v[2 + i] = at[i];
+    if (d->expected < 0)
+        v[9] = NULL;
+    v[10] = isnan(d->ratio) ? NULL : at[8];
+    v[11] = d->ref == ST_REF_NONE ? NULL : (char *)st_ref_state_name(d->ref);
+    for (size_t i = 0; i < 3; i++)
+        v[12 + i] = at[9 + i];
+    v[15] = d->geom_repair;
+    size_t nshare = (size_t)a->nfields * ST_NPROV;
+    for (size_t i = 0; i < nshare; i++, next += strlen(next) + 1)
+        v[N_DISTRICT_COLS + i] = d->buildings ? next : NULL;
+    if (d->geom) {
+        row->f.geom = *d->geom;    /* borrowed view; a polygon goes in as a multipolygon */
+        if (row->f.geom.type == ST_GEOM_POLYGON)
+            row->f.geom.type = ST_GEOM_MULTIPOLYGON;
     }
-    st_free(sat);
-    return rc;
+    return ST_OK;
 }
 
 st_status st_inventory_write_districts(st_inventory *inv, const st_audit *a)
@@ -507,17 +554,13 @@ st_status st_inventory_write_districts(st_inventory *inv, const st_audit *a)
     st_fields fields;
     st_fields_init(&fields);
     st_status rc = district_fields(a, &fields);
-    char **row = rc == ST_OK ? st_calloc(fields.count, sizeof *row) : NULL;
-    if (rc == ST_OK && !row)
-        rc = ST_ERR_NOMEM;
     st_writer *w = writer_for(inv, L_DISTRICTS);
     if (rc == ST_OK)
         rc = st_writer_begin_layer(w, "districts", &fields, ST_GEOM_MULTIPOLYGON);
-    for (size_t i = 0; rc == ST_OK && i < a->ndistricts; i++)
-        rc = write_district(inv, w, a, &a->districts[i], row, fields.count);
+    if (rc == ST_OK)
+        rc = st_writer_write_rows(w, a->ndistricts, fill_district, (void *)a, inv->threads);
     if (rc == ST_OK)
         rc = st_writer_end_layer(w);
-    st_free(row);
     st_fields_free(&fields);
     return rc;
 }
@@ -553,8 +596,6 @@ void st_inventory_close(st_inventory *inv)
     st_fields_free(&inv->source);
     st_fields_free(&inv->bfields);
     st_fields_free(&inv->sfields);
-    st_free(inv->row);
-    st_buf_free(&inv->scratch);
     st_free(inv->path);
     st_free(inv);
 }

@@ -324,5 +324,5 @@ static void csvw_discard(st_writer *w)
 }
 
 const st_writer_format st_csv_writer_format = {
-    "csv", csv_ext, 0, csvw_open, csvw_begin, csvw_write, csvw_end, csvw_finish, NULL,
+    "csv", csv_ext, 0, csvw_open, csvw_begin, csvw_write, csvw_end, NULL, csvw_finish, NULL,
     csvw_discard};

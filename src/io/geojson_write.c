@@ -487,7 +487,7 @@ static const char *const geojsonl_ext[] = {".geojsonl", ".geojsons", ".ndjson", 
 
 const st_writer_format st_geojson_writer_format = {
     "geojson", geojson_ext, 0, geojson_open, gj_begin_layer, gj_write,
-    gj_end_layer, gj_finish, NULL, gj_discard};
+    gj_end_layer, NULL, gj_finish, NULL, gj_discard};
 const st_writer_format st_geojsonl_writer_format = {
     "geojsonl", geojsonl_ext, 0, geojsonl_open, gj_begin_layer, gj_write,
-    gj_end_layer, gj_finish, NULL, gj_discard};
+    gj_end_layer, NULL, gj_finish, NULL, gj_discard};

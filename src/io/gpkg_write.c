@@ -21,8 +21,11 @@
 **          above ST_GPKG_MAX_BLOB or more than GPKG_MAX_FIELDS fields.
 **          After an SQLite failure the writer refuses further work, and
 **          discard() removes the temporary file.
-** Speed:   one transaction for the whole file, prepared statements, and
-**          journal_mode=OFF with synchronous=OFF. That is safe here because
+** Speed:   one transaction for the whole file, prepared statements that
+**          insert many rows each, rows prepared on helper threads
+**          (st_writer_write_rows; one thread inserts, so the connection
+**          needs no mutex), and journal_mode=OFF with synchronous=OFF,
+**          locking_mode=EXCLUSIVE. No journal is safe here because
 **          the file is a temporary one that only a successful commit renames
 **          into place: a crash leaves a stray temporary file, never a
 **          damaged output, so the journal would protect nothing.
@@ -30,6 +33,7 @@
 #include <ctype.h>
 #include <errno.h>
 #include <math.h>
+#include <pthread.h>
 #include <sqlite3.h>
 #include <stdint.h>
 #include <stdio.h>
@@ -42,6 +46,39 @@
 /* SQLite's default limit is 2000 columns; fid and geom take two. */
 #define GPKG_MAX_FIELDS 1998
 #define GPKG_SRS_ID 4326
+/* Rows a statement inserts at most (see prepare_many). */
+#define GPKG_ROWS_PER_INSERT 32
+
+enum { CELL_NULL, CELL_INT, CELL_REAL, CELL_TEXT, CELL_BLOB };
+
+typedef struct gpkg_cell {
+    uint32_t kind;          /* CELL_* */
+    uint32_t len;           /* TEXT, BLOB: bytes */
+    union {
+        int64_t i;
+        double d;
+        size_t off;         /* TEXT, BLOB: where in the batch's bytes */
+    } v;
+} gpkg_cell;
+
+/* Why a geometry could not be prepared; told by the inserting thread. */
+enum { FAULT_NONE, FAULT_TYPE, FAULT_SIZE };
+
+typedef struct gpkg_batch {
+    size_t first;           /* row number of the first row */
+    size_t count;           /* rows prepared */
+    size_t cap;             /* rows the arrays hold */
+    st_status rc;           /* ST_OK, or why row first + count was not */
+    int fault;              /* FAULT_*, with rc */
+    uint64_t fault_index;   /* the feature's index, for the message */
+    st_geom_type fault_type;
+    gpkg_cell *cells;       /* cap * ncells, owned */
+    double *env;            /* 4 per row: minx, miny, maxx, maxy */
+    unsigned char *has_env; /* per row */
+    st_buf bytes;           /* blobs and texts of the rows, owned */
+    size_t seq;             /* ring: the batch this slot is for */
+    int ready;              /* ring: prepared, waiting to be inserted */
+} gpkg_batch;
 
 typedef struct gpkg_layer {
     char *table;                /* owned */
@@ -53,8 +90,10 @@ typedef struct gpkg_layer {
     double extent[4];           /* minx, miny, maxx, maxy */
     int has_extent;
     uint64_t written;
-    double env[4];              /* envelope of the feature being inserted */
-    int has_env;
+    size_t ncells;              /* parameters of a row: geom (if any) + fields */
+    sqlite3_stmt *insert_many;  /* 'many' rows in one statement, or NULL */
+    size_t many;
+    gpkg_batch one;             /* st_writer_write's row, once prepared */
     st_gpkg_box *boxes;         /* owned: the R-tree entries so far */
     size_t nboxes, capboxes;
 } gpkg_layer;
@@ -190,8 +229,11 @@ static st_status gpkg_wopen(st_writer *w)
     char *uri = st_gpkg_uri(w->tmp_path, "mode=rwc");
     if (!uri)
         return ST_ERR_NOMEM;
+    /* NOMUTEX: one thread at a time uses the connection (helpers that
+    ** prepare rows never touch it), so SQLite need not lock it per call. */
     int rc = sqlite3_open_v2(uri, &g->db,
-                             SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_URI, NULL);
+                             SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_URI |
+                                 SQLITE_OPEN_NOMUTEX, NULL);
     st_free(uri);
     if (rc != SQLITE_OK)
         return sql_error(w, rc, "creating the temporary file");
@@ -224,9 +266,14 @@ static st_status gpkg_wopen(st_writer *w)
 
 /* ---- layers ---------------------------------------------------------------- */
 
+static void batch_free(gpkg_batch *b);
+static st_status batch_init(gpkg_batch *b, size_t rows, size_t ncells);
+
 static void layer_free(gpkg_layer *l)
 {
     sqlite3_finalize(l->insert);
+    sqlite3_finalize(l->insert_many);
+    batch_free(&l->one);
     st_free(l->table);
     st_free(l->types);
     st_free(l->boxes);
@@ -400,6 +447,35 @@ static st_status register_layer(st_writer *w, const char *table, st_geom_type ty
     return rc;
 }
 
+/* The statement that inserts l->many rows at once: the one-row insert
+** with its row of parameters repeated. One statement a row costs more than
+** the row itself (the statement's start and end, AUTOINCREMENT's
+** sqlite_sequence update), and the file is the same either way. */
+static st_status prepare_many(st_writer *w, gpkg_layer *l, const st_buf *insert)
+{
+    gpkg_writer *g = w->impl;
+    size_t vars = (size_t)sqlite3_limit(g->db, SQLITE_LIMIT_VARIABLE_NUMBER, -1);
+    l->many = l->ncells ? vars / l->ncells : GPKG_ROWS_PER_INSERT;
+    if (l->many > GPKG_ROWS_PER_INSERT)
+        l->many = GPKG_ROWS_PER_INSERT;
+    if (l->many < 2)
+        return ST_OK;
+    const char *row = strrchr(insert->data, '(');   /* "(NULL, ?, ...)" */
+    st_buf sql;
+    st_buf_init(&sql, 0);
+    st_status rc = st_buf_append(&sql, insert->data, (size_t)(row - insert->data));
+    for (size_t i = 0; rc == ST_OK && i < l->many; i++) {
+        if (i)
+            rc = st_buf_puts(&sql, ", ");
+        if (rc == ST_OK)
+            rc = st_buf_puts(&sql, row);
+    }
+    if (rc == ST_OK)
+        rc = prepare(w, sql.data, &l->insert_many, "preparing the insert");
+    st_buf_free(&sql);
+    return rc;
+}
+
 static st_status gpkg_begin(st_writer *w, const char *name, const st_fields *fields,
                             st_geom_type type)
 {
@@ -434,6 +510,11 @@ static st_status gpkg_begin(st_writer *w, const char *name, const st_fields *fie
         rc = register_layer(w, name, type);
     if (rc == ST_OK)
         rc = prepare(w, insert.data, &l->insert, "preparing the insert");
+    l->ncells = (size_t)l->has_geom + fields->count;
+    if (rc == ST_OK)
+        rc = batch_init(&l->one, 1, l->ncells);
+    if (rc == ST_OK)
+        rc = prepare_many(w, l, &insert);
     st_buf_free(&create);
     st_buf_free(&insert);
     if (rc != ST_OK) {
@@ -475,54 +556,6 @@ static st_geom_type fit_type(st_geom_type declared, const st_geom *g)
     return ST_GEOM_NULL;
 }
 
-/* Bind the geometry (parameter 1) and grow the layer's extent. */
-static st_status bind_geometry(st_writer *w, const st_feature *f)
-{
-    gpkg_writer *g = w->impl;
-    gpkg_layer *l = &g->layer;
-    const st_geom *src = &f->geom;
-    if (src->type == ST_GEOM_NULL || src->type == ST_GEOM_OTHER || st_geom_is_empty(src)) {
-        /* OTHER keeps no coordinates (feature.h): nothing to write. An
-        ** empty geometry is stored as NULL too, as GDAL does: GDAL 3.6's
-        ** validate_gpkg.py reads the empty flag from bit 3 instead of the
-        ** spec's bit 4 (REFERENCES.md section 5), so a spec-correct empty
-        ** blob fails it. The set_aside reason still says it was empty. */
-        sqlite3_bind_null(l->insert, 1);
-        return ST_OK;
-    }
-    l->has_env = 0;
-    st_geom as = *src;   /* shallow: only the type may differ */
-    as.type = fit_type(l->declared, src);
-    if (as.type == ST_GEOM_NULL)
-        return st_writer_fail(w, ST_ERR_USAGE,
-                              "layer '%s' is declared %s; feature %llu is a %s",
-                              l->table, geometry_type_name(l->declared),
-                              (unsigned long long)f->index, st_geom_type_name(src->type));
-    double env[4];
-    int has_env;
-    st_status rc = st_gpkg_blob_encode(&as, GPKG_SRS_ID, &g->blob, env, &has_env);
-    if (rc == ST_ERR_LIMIT)
-        return st_writer_fail(w, rc, "layer '%s', feature %llu: geometry larger than %zu bytes",
-                              l->table, (unsigned long long)f->index, ST_GPKG_MAX_BLOB);
-    if (rc != ST_OK)
-        return rc;
-    sqlite3_bind_blob(l->insert, 1, g->blob.data, (int)g->blob.len, SQLITE_STATIC);
-    if (has_env) {
-        memcpy(l->env, env, sizeof l->env);
-        l->has_env = 1;
-    }
-    if (has_env && !l->has_extent) {
-        memcpy(l->extent, env, sizeof l->extent);
-        l->has_extent = 1;
-    } else if (has_env) {
-        if (env[0] < l->extent[0]) l->extent[0] = env[0];
-        if (env[1] < l->extent[1]) l->extent[1] = env[1];
-        if (env[2] > l->extent[2]) l->extent[2] = env[2];
-        if (env[3] > l->extent[3]) l->extent[3] = env[3];
-    }
-    return ST_OK;
-}
-
 static int parse_boolean(const char *v, int *out)
 {
     static const char *const yes[] = {"true", "1", "yes"};
@@ -552,6 +585,8 @@ static int parse_integer(const char *v, long long *out)
 static int parse_real(const char *v, double *out)
 {
     char *end;
+    if (st_parse_decimal_fast(v, out))   /* strtod's result, without strtod */
+        return 1;
     if (!v[0] || isspace((unsigned char)v[0]))
         return 0;
     errno = 0;
@@ -559,31 +594,165 @@ static int parse_real(const char *v, double *out)
     return !*end && errno == 0 && isfinite(*out);
 }
 
-/* Bind value v to parameter p by the column's type. A text that does not
+/* ---- preparing rows ---------------------------------------------------------
+** A row is made ready in two steps. Preparing (prepare_row) turns the
+** feature into cells: the geometry encoded as a blob, each value parsed by
+** its column's type; it reads only the layer's declaration, so any thread
+** may prepare rows. Inserting (insert_batch) binds the cells and steps the
+** statement, keeps each row's R-tree box and grows the extent, in row order,
+** on the thread that owns the connection. */
+
+static void batch_free(gpkg_batch *b)
+{
+    if (!b)
+        return;
+    st_free(b->cells);
+    st_free(b->env);
+    st_free(b->has_env);
+    st_buf_free(&b->bytes);
+    memset(b, 0, sizeof *b);
+}
+
+static st_status batch_init(gpkg_batch *b, size_t rows, size_t ncells)
+{
+    memset(b, 0, sizeof *b);
+    st_buf_init(&b->bytes, 0);
+    b->cap = rows;
+    b->cells = st_malloc(rows * (ncells ? ncells : 1) * sizeof *b->cells);
+    b->env = st_malloc(rows * 4 * sizeof *b->env);
+    b->has_env = st_malloc(rows);
+    if (b->cells && b->env && b->has_env)
+        return ST_OK;
+    batch_free(b);
+    return ST_ERR_NOMEM;
+}
+
+static void batch_start(gpkg_batch *b, size_t first)
+{
+    b->first = first;
+    b->count = 0;
+    b->rc = ST_OK;
+    b->fault = FAULT_NONE;
+    st_buf_clear(&b->bytes);
+}
+
+static st_status cell_bytes(gpkg_batch *b, gpkg_cell *c, uint32_t kind, const char *p,
+                            size_t n)
+{
+    c->kind = kind;
+    c->len = (uint32_t)n;
+    c->v.off = b->bytes.len;
+    return n ? st_buf_append(&b->bytes, p, n) : ST_OK;
+}
+
+/* The cell of the geometry and the row's envelope. */
+static st_status prepare_geometry(const gpkg_layer *l, const st_feature *f, gpkg_batch *b,
+                                  gpkg_cell *c, double *env, unsigned char *has_env,
+                                  st_buf *blob)
+{
+    const st_geom *src = &f->geom;
+    *has_env = 0;
+    if (src->type == ST_GEOM_NULL || src->type == ST_GEOM_OTHER || st_geom_is_empty(src)) {
+        /* OTHER keeps no coordinates (feature.h): nothing to write. An
+        ** empty geometry is stored as NULL too, as GDAL does: GDAL 3.6's
+        ** validate_gpkg.py reads the empty flag from bit 3 instead of the
+        ** spec's bit 4 (REFERENCES.md section 5), so a spec-correct empty
+        ** blob fails it. The set_aside reason still says it was empty. */
+        c->kind = CELL_NULL;
+        return ST_OK;
+    }
+    st_geom as = *src;   /* shallow: only the type may differ */
+    as.type = fit_type(l->declared, src);
+    if (as.type == ST_GEOM_NULL) {
+        b->fault = FAULT_TYPE;
+        b->fault_index = f->index;
+        b->fault_type = src->type;
+        return ST_ERR_USAGE;
+    }
+    int has;
+    st_status rc = st_gpkg_blob_encode(&as, GPKG_SRS_ID, blob, env, &has);
+    if (rc == ST_ERR_LIMIT) {
+        b->fault = FAULT_SIZE;
+        b->fault_index = f->index;
+    }
+    if (rc != ST_OK)
+        return rc;
+    *has_env = (unsigned char)has;
+    return cell_bytes(b, c, CELL_BLOB, blob->data, blob->len);
+}
+
+/* The cell of value v in a column of type 'type'. A text that does not
 ** parse as the type is stored as text all the same: SQLite keeps it, and
 ** losing a source value would be worse than a typed column holding text.
 ** (SQLite's column affinity may still turn a number written with spaces
 ** around it into a number.) */
-static void bind_value(sqlite3_stmt *s, int p, st_field_type type, const char *v)
+static st_status prepare_value(gpkg_batch *b, gpkg_cell *c, st_field_type type,
+                               const char *v)
 {
     long long n;
     double d;
-    int b;
-    if (!v)
-        sqlite3_bind_null(s, p);
-    else if (type == ST_FIELD_INTEGER && parse_integer(v, &n))
-        sqlite3_bind_int64(s, p, n);
-    else if (type == ST_FIELD_REAL && parse_real(v, &d))
-        sqlite3_bind_double(s, p, d);
-    else if (type == ST_FIELD_BOOLEAN && parse_boolean(v, &b))
-        sqlite3_bind_int(s, p, b);
-    else
-        sqlite3_bind_text(s, p, v, -1, SQLITE_STATIC);
+    int bo;
+    if (!v) {
+        c->kind = CELL_NULL;
+    } else if (type == ST_FIELD_INTEGER && parse_integer(v, &n)) {
+        c->kind = CELL_INT;
+        c->v.i = n;
+    } else if (type == ST_FIELD_REAL && parse_real(v, &d)) {
+        c->kind = CELL_REAL;
+        c->v.d = d;
+    } else if (type == ST_FIELD_BOOLEAN && parse_boolean(v, &bo)) {
+        c->kind = CELL_INT;
+        c->v.i = bo;
+    } else {
+        return cell_bytes(b, c, CELL_TEXT, v, strlen(v));
+    }
+    return ST_OK;
 }
 
-/* Remember the R-tree entry of the row just inserted: the tree is packed
-** and written in one go when the layer ends (io/gpkg_rtree.c). */
-static st_status keep_box(st_writer *w, gpkg_layer *l)
+/* Append f as the next row of batch b (which has room); 'blob' is the
+** caller's scratch buffer. On failure b->rc and b->fault say why. */
+static st_status prepare_row(const gpkg_layer *l, const st_feature *f, gpkg_batch *b,
+                             st_buf *blob)
+{
+    size_t r = b->count;
+    gpkg_cell *c = b->cells + r * l->ncells;
+    b->has_env[r] = 0;
+    st_status rc = ST_OK;
+    if (l->has_geom)
+        rc = prepare_geometry(l, f, b, c++, b->env + 4 * r, &b->has_env[r], blob);
+    for (uint32_t i = 0; rc == ST_OK && i < l->nfields; i++)
+        rc = prepare_value(b, c++, l->types[i], st_feature_value(f, i));
+    if (rc == ST_OK)
+        b->count++;
+    else
+        b->rc = rc;
+    return rc;
+}
+
+/* ---- inserting rows -------------------------------------------------------- */
+
+static void bind_cells(sqlite3_stmt *s, int p, const gpkg_cell *c, size_t n,
+                       const char *bytes)
+{
+    for (size_t i = 0; i < n; i++, p++, c++) {
+        switch (c->kind) {
+        case CELL_INT: sqlite3_bind_int64(s, p, c->v.i); break;
+        case CELL_REAL: sqlite3_bind_double(s, p, c->v.d); break;
+        case CELL_TEXT:
+            sqlite3_bind_text(s, p, bytes + c->v.off, (int)c->len, SQLITE_STATIC);
+            break;
+        case CELL_BLOB:
+            sqlite3_bind_blob(s, p, bytes + c->v.off, (int)c->len, SQLITE_STATIC);
+            break;
+        default: sqlite3_bind_null(s, p); break;
+        }
+    }
+}
+
+/* Remember the R-tree entry of row 'id' with envelope env (minx, miny,
+** maxx, maxy): the tree is packed and written in one go when the layer
+** ends (io/gpkg_rtree.c). Grow the layer's extent. */
+static st_status keep_box(st_writer *w, gpkg_layer *l, int64_t id, const double *env)
 {
     if (l->nboxes == l->capboxes) {
         size_t cap = l->capboxes ? l->capboxes * 2 : 1024;
@@ -593,38 +762,275 @@ static st_status keep_box(st_writer *w, gpkg_layer *l)
         l->boxes = a;
         l->capboxes = cap;
     }
-    gpkg_writer *g = w->impl;
     l->boxes[l->nboxes++] = (st_gpkg_box){
-        sqlite3_last_insert_rowid(g->db),
-        {st_gpkg_rtree_down(l->env[0]), st_gpkg_rtree_up(l->env[2]),
-         st_gpkg_rtree_down(l->env[1]), st_gpkg_rtree_up(l->env[3])}};
+        id, {st_gpkg_rtree_down(env[0]), st_gpkg_rtree_up(env[2]),
+             st_gpkg_rtree_down(env[1]), st_gpkg_rtree_up(env[3])}};
+    if (!l->has_extent) {
+        memcpy(l->extent, env, sizeof l->extent);
+        l->has_extent = 1;
+    } else {
+        if (env[0] < l->extent[0]) l->extent[0] = env[0];
+        if (env[1] < l->extent[1]) l->extent[1] = env[1];
+        if (env[2] > l->extent[2]) l->extent[2] = env[2];
+        if (env[3] > l->extent[3]) l->extent[3] = env[3];
+    }
+    return ST_OK;
+}
+
+/* Insert the prepared rows of b in order, l->many rows a statement while
+** that many are left; then report why b stopped short, if it did. */
+static st_status insert_batch(st_writer *w, gpkg_batch *b)
+{
+    gpkg_writer *g = w->impl;
+    gpkg_layer *l = &g->layer;
+    st_status rc = ST_OK;
+    for (size_t r = 0; rc == ST_OK && r < b->count;) {
+        size_t m = l->insert_many && b->count - r >= l->many ? l->many : 1;
+        sqlite3_stmt *s = m > 1 ? l->insert_many : l->insert;
+        bind_cells(s, 1, b->cells + r * l->ncells, m * l->ncells, b->bytes.data);
+        rc = step_done(w, s, "inserting a feature");
+        /* fid is NULL in the insert, so the rows get consecutive ids */
+        int64_t last = sqlite3_last_insert_rowid(g->db);
+        for (size_t k = 0; rc == ST_OK && k < m; k++)
+            if (b->has_env[r + k])
+                rc = keep_box(w, l, last - (int64_t)(m - 1 - k), b->env + 4 * (r + k));
+        if (rc == ST_OK)
+            l->written += m;
+        r += m;
+    }
+    if (rc != ST_OK || b->rc == ST_OK)
+        return rc;
+    if (b->fault == FAULT_TYPE)
+        return st_writer_fail(w, ST_ERR_USAGE, "layer '%s' is declared %s; feature %llu is a %s",
+                              l->table, geometry_type_name(l->declared),
+                              (unsigned long long)b->fault_index,
+                              st_geom_type_name(b->fault_type));
+    if (b->fault == FAULT_SIZE)
+        return st_writer_fail(w, b->rc, "layer '%s', feature %llu: geometry larger than %zu bytes",
+                              l->table, (unsigned long long)b->fault_index, ST_GPKG_MAX_BLOB);
+    return b->rc;
+}
+
+static st_status usable(st_writer *w)
+{
+    gpkg_writer *g = w->impl;
+    if (g->failed || !g->in_layer)
+        return st_writer_fail(w, g->failed ? ST_ERR_IO : ST_ERR_USAGE,
+                              g->failed ? "the output is unusable after an earlier error"
+                                        : "a feature was written outside a layer");
     return ST_OK;
 }
 
 static st_status gpkg_write(st_writer *w, const st_feature *f)
 {
+    st_status rc = usable(w);
+    if (rc != ST_OK)
+        return rc;
     gpkg_writer *g = w->impl;
     gpkg_layer *l = &g->layer;
-    if (g->failed || !g->in_layer)
-        return st_writer_fail(w, g->failed ? ST_ERR_IO : ST_ERR_USAGE,
-                              g->failed ? "the output is unusable after an earlier error"
-                                        : "a feature was written outside a layer");
-    int p = 1;
-    l->has_env = 0;
-    if (l->has_geom) {
-        st_status rc = bind_geometry(w, f);
-        if (rc != ST_OK)
-            return rc;
-        p++;
+    batch_start(&l->one, 0);
+    prepare_row(l, f, &l->one, &g->blob);
+    return insert_batch(w, &l->one);
+}
+
+/* ---- many rows: helper threads prepare, this thread inserts ----------------
+** Rows go in batches of GPKG_BATCH_ROWS (the same batches for any number of
+** threads, so the same statements run in the same order). Helpers take the
+** batches in order and prepare each into a slot of a ring; batch b uses
+** slot b % nslots once batch b - nslots has been inserted. The inserting
+** thread takes the slots in batch order. */
+
+#define GPKG_BATCH_ROWS 256
+#define GPKG_MAX_HELPERS 16
+
+typedef struct gpkg_maker {   /* what one preparing thread owns */
+    st_row row;
+    st_buf blob;
+} gpkg_maker;
+
+typedef struct gpkg_ring {
+    pthread_mutex_t lock;
+    pthread_cond_t changed;      /* a slot became ready or free, or stop */
+    gpkg_batch *slots;
+    size_t nslots;
+    size_t next;                 /* the next batch a helper takes */
+    size_t nbatches;
+    int stop;                    /* the inserting thread is done */
+    const gpkg_layer *layer;
+    size_t n;
+    st_row_fill fill;
+    void *ctx;
+} gpkg_ring;
+
+typedef struct gpkg_helper {
+    gpkg_ring *ring;
+    gpkg_maker maker;
+    pthread_t tid;
+} gpkg_helper;
+
+static st_status maker_init(gpkg_maker *m, uint32_t nvalues)
+{
+    st_buf_init(&m->blob, ST_GPKG_MAX_BLOB);
+    return st_writer_row_init(&m->row, nvalues);
+}
+
+static void maker_free(gpkg_maker *m)
+{
+    st_writer_row_free(&m->row);
+    st_buf_free(&m->blob);
+}
+
+/* Fill and prepare the rows of batch 'index' into b; stops at the first
+** row that fails (b->rc). */
+static void make_batch(const gpkg_ring *ring, gpkg_maker *m, gpkg_batch *b, size_t index)
+{
+    size_t first = index * GPKG_BATCH_ROWS;
+    size_t end = first + GPKG_BATCH_ROWS < ring->n ? first + GPKG_BATCH_ROWS : ring->n;
+    batch_start(b, first);
+    for (size_t k = first; k < end; k++) {
+        st_status rc = st_writer_row_fill(&m->row, ring->fill, ring->ctx, k);
+        if (rc != ST_OK) {
+            b->rc = rc;
+            return;
+        }
+        if (prepare_row(ring->layer, &m->row.f, b, &m->blob) != ST_OK)
+            return;
     }
-    for (uint32_t i = 0; i < l->nfields; i++)
-        bind_value(l->insert, p + (int)i, l->types[i], st_feature_value(f, i));
-    st_status rc = step_done(w, l->insert, "inserting a feature");
-    sqlite3_clear_bindings(l->insert);
-    if (rc == ST_OK && l->has_env)
-        rc = keep_box(w, l);
+}
+
+static void *helper_main(void *arg)
+{
+    gpkg_helper *h = arg;
+    gpkg_ring *ring = h->ring;
+    pthread_mutex_lock(&ring->lock);
+    while (!ring->stop && ring->next < ring->nbatches) {
+        size_t index = ring->next++;
+        gpkg_batch *b = &ring->slots[index % ring->nslots];
+        while (!ring->stop && b->seq != index)
+            pthread_cond_wait(&ring->changed, &ring->lock);
+        if (ring->stop)
+            break;
+        pthread_mutex_unlock(&ring->lock);
+        make_batch(ring, &h->maker, b, index);
+        pthread_mutex_lock(&ring->lock);
+        b->ready = 1;
+        pthread_cond_broadcast(&ring->changed);
+    }
+    pthread_mutex_unlock(&ring->lock);
+    return NULL;
+}
+
+/* Insert every batch as the helpers make them ready. */
+static st_status insert_from_ring(st_writer *w, gpkg_ring *ring)
+{
+    st_status rc = ST_OK;
+    for (size_t index = 0; rc == ST_OK && index < ring->nbatches; index++) {
+        gpkg_batch *b = &ring->slots[index % ring->nslots];
+        pthread_mutex_lock(&ring->lock);
+        while (!(b->seq == index && b->ready))
+            pthread_cond_wait(&ring->changed, &ring->lock);
+        pthread_mutex_unlock(&ring->lock);
+        rc = insert_batch(w, b);
+        pthread_mutex_lock(&ring->lock);
+        b->ready = 0;
+        b->seq = index + ring->nslots;
+        pthread_cond_broadcast(&ring->changed);
+        pthread_mutex_unlock(&ring->lock);
+    }
+    return rc;
+}
+
+/* Every batch made and inserted by this thread, through slot 0. */
+static st_status write_alone(st_writer *w, gpkg_ring *ring)
+{
+    gpkg_maker m;
+    st_status rc = maker_init(&m, w->nfields);
+    for (size_t index = 0; rc == ST_OK && index < ring->nbatches; index++) {
+        make_batch(ring, &m, &ring->slots[0], index);
+        rc = insert_batch(w, &ring->slots[0]);
+    }
+    maker_free(&m);
+    return rc;
+}
+
+/* Start up to 'want' helpers; returns how many started. A thread that
+** cannot be started is not an error: fewer helpers do the work, or none,
+** and then this thread does it alone. No memory is (*rc). */
+static unsigned start_helpers(gpkg_ring *ring, gpkg_helper *h, unsigned want,
+                              uint32_t nvalues, st_status *rc)
+{
+    unsigned started = 0;
+    for (unsigned i = 0; i < want; i++) {
+        h[i].ring = ring;
+        *rc = maker_init(&h[i].maker, nvalues);
+        if (*rc != ST_OK || pthread_create(&h[i].tid, NULL, helper_main, &h[i]) != 0) {
+            maker_free(&h[i].maker);
+            break;
+        }
+        started++;
+    }
+    return started;
+}
+
+static st_status write_threaded(st_writer *w, gpkg_ring *ring, unsigned want)
+{
+    gpkg_helper h[GPKG_MAX_HELPERS];
+    if (pthread_mutex_init(&ring->lock, NULL) != 0)
+        return write_alone(w, ring);
+    if (pthread_cond_init(&ring->changed, NULL) != 0) {
+        pthread_mutex_destroy(&ring->lock);
+        return write_alone(w, ring);
+    }
+    st_status rc = ST_OK;
+    unsigned started = start_helpers(ring, h, want, w->nfields, &rc);
     if (rc == ST_OK)
-        l->written++;
+        rc = started > 0 ? insert_from_ring(w, ring) : write_alone(w, ring);
+    pthread_mutex_lock(&ring->lock);
+    ring->stop = 1;
+    pthread_cond_broadcast(&ring->changed);
+    pthread_mutex_unlock(&ring->lock);
+    for (unsigned i = 0; i < started; i++) {
+        pthread_join(h[i].tid, NULL);
+        maker_free(&h[i].maker);
+    }
+    pthread_cond_destroy(&ring->changed);
+    pthread_mutex_destroy(&ring->lock);
+    return rc;
+}
+
+static st_status gpkg_write_rows(st_writer *w, size_t n, st_row_fill fill, void *ctx,
+                                 unsigned nthreads)
+{
+    st_status rc = usable(w);
+    if (rc != ST_OK)
+        return rc;
+    gpkg_writer *g = w->impl;
+    gpkg_ring ring;
+    memset(&ring, 0, sizeof ring);
+    ring.layer = &g->layer;
+    ring.n = n;
+    ring.fill = fill;
+    ring.ctx = ctx;
+    ring.nbatches = (n + GPKG_BATCH_ROWS - 1) / GPKG_BATCH_ROWS;
+    unsigned helpers = nthreads > 1 ? nthreads : 0;
+    if (helpers > GPKG_MAX_HELPERS)
+        helpers = GPKG_MAX_HELPERS;
+    if (helpers > ring.nbatches)
+        helpers = (unsigned)ring.nbatches;
+    ring.nslots = helpers ? 2 * (size_t)helpers + 2 : 1;
+    ring.slots = st_calloc(ring.nslots, sizeof *ring.slots);
+    if (!ring.slots)
+        return ST_ERR_NOMEM;
+    size_t made = 0;
+    for (; rc == ST_OK && made < ring.nslots; made++) {
+        rc = batch_init(&ring.slots[made], GPKG_BATCH_ROWS, g->layer.ncells);
+        ring.slots[made].seq = made;
+    }
+    if (rc == ST_OK)
+        rc = helpers ? write_threaded(w, &ring, helpers) : write_alone(w, &ring);
+    for (size_t i = 0; i < ring.nslots; i++)
+        batch_free(&ring.slots[i]);
+    st_free(ring.slots);
     return rc;
 }
 
@@ -762,7 +1168,8 @@ static st_status gpkg_end(st_writer *w)
                              : ST_OK;
     /* Finalise the insert first: the R-tree statements touch its table. */
     sqlite3_finalize(l->insert);
-    l->insert = NULL;
+    sqlite3_finalize(l->insert_many);
+    l->insert = l->insert_many = NULL;
     if (rc == ST_OK && l->has_geom)
         rc = store_extent(w, l);
     if (rc == ST_OK && l->has_geom)
@@ -819,5 +1226,5 @@ static void gpkg_discard(st_writer *w)
 
 const st_writer_format st_gpkg_writer_format = {
     "gpkg", gpkg_extensions_list, 1, gpkg_wopen, gpkg_begin, gpkg_write,
-    gpkg_end, gpkg_finish, NULL, gpkg_discard,
+    gpkg_end, gpkg_write_rows, gpkg_finish, NULL, gpkg_discard,
 };

@@ -51,6 +51,10 @@ typedef struct st_writer_format {
                              const st_fields *fields, st_geom_type type);
     st_status (*write)(st_writer *w, const st_feature *f);
     st_status (*end_layer)(st_writer *w);
+    /* st_writer_write_rows for the format (w->in_layer checked); NULL: the
+    ** generic code fills each row and calls write(). */
+    st_status (*write_rows)(st_writer *w, size_t n, st_row_fill fill, void *ctx,
+                            unsigned nthreads);
     /* Flush and close the temporary file(s); release w->impl and set it
     ** to NULL, also on failure. */
     st_status (*finish)(st_writer *w);
@@ -70,6 +74,7 @@ struct st_writer {
     st_buf notes;            /* what the format changed, one line each */
     int layers_begun;
     int in_layer;
+    uint32_t nfields;        /* fields of the layer begun last */
     int finished;            /* finish() returned OK: impl released */
     int committed;
     void *impl;
@@ -92,6 +97,14 @@ st_status st_reader_fail(st_reader *r, st_status code, long long index,
                          const char *fmt, ...) ST_PRINTF(4, 5);
 st_status st_writer_fail(st_writer *w, st_status code, const char *fmt, ...)
     ST_PRINTF(3, 4);
+/* A row for st_row_fill callbacks: 'nvalues' NULL values (owned by the
+** row), empty text and point. ST_ERR_NOMEM. */
+st_status st_writer_row_init(st_row *row, uint32_t nvalues) ST_MUST_CHECK;
+/* Clear the row as st_row_fill promises it, then fill(ctx, k, row). */
+st_status st_writer_row_fill(st_row *row, st_row_fill fill, void *ctx,
+                             size_t k) ST_MUST_CHECK;
+void st_writer_row_free(st_row *row);
+
 /* Lowercase extension of path including the dot ("" if none); borrowed
 ** pointer into path. */
 const char *st_path_ext(const char *path);

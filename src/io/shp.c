@@ -1861,6 +1861,6 @@ static void shp_discard(st_writer *w)
 static const char *const shp_ext[] = {".shp", NULL};
 
 const st_writer_format st_shp_writer_format = {
-    "shapefile", shp_ext, 0, shp_wopen, shp_begin, shp_write, shp_end,
+    "shapefile", shp_ext, 0, shp_wopen, shp_begin, shp_write, shp_end, NULL,
     shp_finish, shp_commit, shp_discard,
 };

@@ -102,6 +102,7 @@ st_status st_writer_begin_layer(st_writer *w, const char *name,
     if (rc == ST_OK) {
         w->layers_begun++;
         w->in_layer = 1;
+        w->nfields = fields->count;
     }
     return rc;
 }
@@ -109,6 +110,54 @@ st_status st_writer_begin_layer(st_writer *w, const char *name,
 st_status st_writer_write(st_writer *w, const st_feature *f)
 {
     return w->fmt->write(w, f);
+}
+
+st_status st_writer_row_init(st_row *row, uint32_t nvalues)
+{
+    memset(row, 0, sizeof *row);
+    st_buf_init(&row->text, 0);
+    st_geom_init(&row->point);
+    row->f.values = st_calloc(nvalues ? nvalues : 1, sizeof *row->f.values);
+    row->f.nvalues = nvalues;
+    return row->f.values ? ST_OK : ST_ERR_NOMEM;
+}
+
+st_status st_writer_row_fill(st_row *row, st_row_fill fill, void *ctx, size_t k)
+{
+    char **values = row->f.values;
+    uint32_t n = row->f.nvalues;
+    memset(&row->f, 0, sizeof row->f);
+    memset(values, 0, (n ? n : 1) * sizeof *values);
+    row->f.values = values;
+    row->f.nvalues = n;
+    st_buf_clear(&row->text);
+    return fill(ctx, k, row);
+}
+
+void st_writer_row_free(st_row *row)
+{
+    st_free(row->f.values);
+    st_buf_free(&row->text);
+    st_geom_clear(&row->point);
+    memset(row, 0, sizeof *row);
+}
+
+st_status st_writer_write_rows(st_writer *w, size_t n, st_row_fill fill, void *ctx,
+                               unsigned nthreads)
+{
+    if (!w->in_layer)
+        return st_writer_fail(w, ST_ERR_USAGE, "rows were written outside a layer");
+    if (w->fmt->write_rows)
+        return w->fmt->write_rows(w, n, fill, ctx, nthreads);
+    st_row row;
+    st_status rc = st_writer_row_init(&row, w->nfields);
+    for (size_t k = 0; rc == ST_OK && k < n; k++) {
+        rc = st_writer_row_fill(&row, fill, ctx, k);
+        if (rc == ST_OK)
+            rc = w->fmt->write(w, &row.f);
+    }
+    st_writer_row_free(&row);
+    return rc;
 }
 
 st_status st_writer_end_layer(st_writer *w)

@@ -4,6 +4,7 @@
 ** unmapped) and the report, all under temporary names until every one is
 ** ready, then renamed into place.
 */
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -96,6 +97,22 @@ static st_status write_run_info(run_state *s, st_inventory *inv)
 static int32_t storeys_field(const run_state *s)
 {
     return s->rules ? st_rules_field_find(s->rules, "storeys") : -1;
+}
+
+/* The kept buildings into the report's distributions (s->dist). */
+typedef struct dist_job {
+    run_state *s;
+    st_feature **kept;
+    size_t nk;
+} dist_job;
+
+static void *dist_main(void *arg)
+{
+    dist_job *j = arg;
+    int32_t field = storeys_field(j->s);
+    for (size_t i = 0; i < j->nk; i++)
+        st_report_dist_add(&j->s->dist, j->kept[i], field);
+    return NULL;
 }
 
 static void report_files_free(report_files *rf)
@@ -291,15 +308,25 @@ st_status st_stage_write(run_state *s)
     st_status rc = st_inventory_open(s->opt->output, layers, (uint32_t)nl, schema, nschema,
                                      s->diags, &inv);
     st_free(schema);
+    if (rc == ST_OK)
+        st_inventory_set_threads(inv, s->threads);
     if (rc == ST_OK) {
         kept = select_features(s, 1, &nk);
         aside = select_features(s, 0, &ns);
         rc = kept && aside ? ST_OK : ST_ERR_NOMEM;
     }
-    for (size_t i = 0; rc == ST_OK && i < nk; i++)
-        st_report_dist_add(&s->dist, kept[i], storeys_field(s));
+    /* The report's distributions are tallied beside the buildings' write
+    ** (both only read the features). */
+    dist_job dj = {s, kept, nk};
+    pthread_t dist_thread;
+    int dist_apart = rc == ST_OK && s->threads > 1 &&
+                     pthread_create(&dist_thread, NULL, dist_main, &dj) == 0;
+    if (rc == ST_OK && !dist_apart)
+        dist_main(&dj);
     if (rc == ST_OK)
         rc = st_inventory_write_buildings(inv, kept, nk, names);
+    if (dist_apart)
+        pthread_join(dist_thread, NULL);
     if (rc == ST_OK)
         rc = st_inventory_write_set_aside(inv, aside, ns, names);
     if (rc == ST_OK)

@@ -313,6 +313,36 @@ static void test_geos_bridge_reports_nomem(void **state)
     st_geos_free(gx);
 }
 
+/* st_geom_reset empties a geometry and keeps its arrays: building it
+** again up to the same size allocates nothing. */
+static void test_geom_reset_keeps_memory(void **state)
+{
+    (void)state;
+    st_geom g;
+    st_geom_init(&g);
+    g.type = ST_GEOM_POLYGON;
+    for (int i = 0; i < 4; i++)
+        assert_int_equal(st_geom_add_xy(&g, i, i * i), ST_OK);
+    st_geom_reset(&g);
+    assert_int_equal(g.type, ST_GEOM_NULL);
+    assert_int_equal(g.ncoords, 0);
+    assert_true(st_geom_is_empty(&g));
+    st_alloc_fail_after(1);   /* any allocation would fail */
+    g.type = ST_GEOM_POINT;
+    st_status rc = st_geom_add_xy(&g, 7.5, 47.25);
+    long used = st_alloc_count();
+    st_alloc_fail_after(0);
+    assert_int_equal(rc, ST_OK);
+    assert_int_equal(used, 0);
+    assert_int_equal(g.ncoords, 1);
+    assert_int_equal(g.nparts, 1);
+    assert_int_equal(g.nrings, 1);
+    assert_true(g.xy[0] == 7.5 && g.xy[1] == 47.25);
+    assert_int_equal(g.ring_coord[0], 0);
+    assert_int_equal(g.ring_coord[1], 1);
+    st_geom_clear(&g);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -330,6 +360,7 @@ int main(void)
         cmocka_unit_test(test_feature_values),
         cmocka_unit_test(test_fields_dedupe),
         cmocka_unit_test(test_geom_builder_nomem_loop),
+        cmocka_unit_test(test_geom_reset_keeps_memory),
     };
     return cmocka_run_group_tests_name("core", tests, NULL, NULL);
 }

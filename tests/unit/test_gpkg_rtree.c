@@ -8,7 +8,11 @@
 **     whose envelopes meet the window, counted by brute force here;
 **   - the module can go on inserting into the packed tree (splits) and
 **     deleting from it, and rtreecheck() still says 'ok';
-**   - the outward rounding to float32 contains every double.
+**   - the outward rounding to float32 contains every double;
+**   - the leaves hold the boxes in sort-tile-recursive order, exactly as
+**     qsort() with the (centre, id) comparison sorts them;
+**   - boxes handed over in any order, with dense or sparse ids, load into a
+**     tree that rtreecheck() accepts and where every id finds its box.
 */
 #include <setjmp.h>
 #include <stdarg.h>
@@ -224,6 +228,132 @@ static void test_empty_layer(void **state)
     unlink(path);
 }
 
+/* Load n boxes with ids id(i) in a scrambled order straight into an rtree
+** table; the tree passes rtreecheck() and every id finds its own box. */
+static void load_ids(size_t n, int64_t stride)
+{
+    sqlite3 *db;
+    assert_int_equal(sqlite3_open(":memory:", &db), SQLITE_OK);
+    assert_int_equal(sqlite3_exec(db, "CREATE VIRTUAL TABLE rtree_squares_geom USING "
+                                      "rtree(id, minx, maxx, miny, maxy)", NULL, NULL, NULL),
+                     SQLITE_OK);
+    st_gpkg_box *boxes = calloc(n, sizeof *boxes);
+    assert_non_null(boxes);
+    uint64_t seed = 11 + n;
+    for (size_t i = 0; i < n; i++) {
+        size_t j = (i * 7919) % n;   /* n is not a multiple of 7919: a permutation */
+        float x = (float)(10 * next_unit(&seed)), y = (float)(10 * next_unit(&seed));
+        boxes[j] = (st_gpkg_box){1 + (int64_t)i * stride, {x, x + 0.01f, y, y + 0.02f}};
+    }
+    char err[256] = "";
+    assert_int_equal(st_gpkg_rtree_load(db, "rtree_squares_geom", boxes, n, err, sizeof err),
+                     ST_OK);
+    expect_rtreecheck_ok(db);
+    assert_int_equal(scalar(db, "SELECT count(*) FROM rtree_squares_geom_rowid"), (long long)n);
+    sqlite3_stmt *s;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT minx, maxx, miny, maxy FROM "
+                                            "rtree_squares_geom WHERE id = ?", -1, &s, NULL),
+                     SQLITE_OK);
+    for (size_t j = 0; j < n; j++) {
+        sqlite3_bind_int64(s, 1, boxes[j].id);
+        assert_int_equal(sqlite3_step(s), SQLITE_ROW);
+        for (int k = 0; k < 4; k++)
+            assert_true((float)sqlite3_column_double(s, k) == boxes[j].b[k]);
+        sqlite3_reset(s);
+    }
+    sqlite3_finalize(s);
+    free(boxes);
+    sqlite3_close(db);
+}
+
+/* The _rowid rows are written in rowid order, found in linear time for
+** dense ids (one layer's fids) and by sorting for sparse ones. */
+static void test_dense_and_sparse_ids(void **state)
+{
+    (void)state;
+    load_ids(3001, 1);      /* dense: ids 1..3001 */
+    load_ids(3001, 5);      /* sparse: range 5 times the count */
+    load_ids(63, 1);        /* fewer than one statement's rows */
+}
+
+/* The reference order, with qsort(): by the float sum of two bounds, then
+** by id. */
+static int ref_axis;
+static int ref_cmp(const void *a, const void *b)
+{
+    const st_gpkg_box *p = a, *q = b;
+    float x = p->b[ref_axis] + p->b[ref_axis + 1], y = q->b[ref_axis] + q->b[ref_axis + 1];
+    if (x != y)
+        return x < y ? -1 : 1;
+    return (p->id > q->id) - (p->id < q->id);
+}
+
+/* The leaves hold the boxes in sort-tile-recursive order: sorted by x
+** centre, then slices of ceil(sqrt(leaves)) leaves each sorted by y centre,
+** ties by id (here many: centres on a coarse grid), exactly as qsort()
+** with that comparison orders them. */
+static void test_packing_order(void **state)
+{
+    (void)state;
+    const size_t n = 20011;
+    sqlite3 *db;
+    assert_int_equal(sqlite3_open(":memory:", &db), SQLITE_OK);
+    assert_int_equal(sqlite3_exec(db, "CREATE VIRTUAL TABLE rtree_squares_geom USING "
+                                      "rtree(id, minx, maxx, miny, maxy)", NULL, NULL, NULL),
+                     SQLITE_OK);
+    st_gpkg_box *boxes = calloc(n, sizeof *boxes), *want = calloc(n, sizeof *want);
+    assert_non_null(boxes);
+    assert_non_null(want);
+    uint64_t seed = 5;
+    for (size_t i = 0; i < n; i++) {
+        float x = (float)(int)(40 * next_unit(&seed)), y = (float)(int)(40 * next_unit(&seed));
+        float w = i % 3 ? 0.5f : 0.25f;   /* x - w + x + w ties often; so do centres */
+        boxes[i] = (st_gpkg_box){(int64_t)((i * 7919) % n) + 1, {x - w, x + w, y - 1, y + 1}};
+    }
+    memcpy(want, boxes, n * sizeof *want);
+    char err[256] = "";
+    assert_int_equal(st_gpkg_rtree_load(db, "rtree_squares_geom", boxes, n, err, sizeof err),
+                     ST_OK);
+    expect_rtreecheck_ok(db);
+    long long node_bytes = scalar(db, "SELECT length(data) FROM rtree_squares_geom_node "
+                                      "WHERE nodeno = 1");
+    size_t cap = (size_t)(node_bytes - 4) / 24;
+    size_t leaves = (n + cap - 1) / cap;
+    size_t per_slice = (size_t)ceil(sqrt((double)leaves)) * cap;
+    ref_axis = 0;
+    qsort(want, n, sizeof *want, ref_cmp);
+    ref_axis = 2;
+    for (size_t at = 0; at < n; at += per_slice)
+        qsort(want + at, n - at < per_slice ? n - at : per_slice, sizeof *want, ref_cmp);
+    /* the leaves in node order, their cells in order */
+    sqlite3_stmt *s;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT data FROM rtree_squares_geom_node WHERE "
+                                            "nodeno IN (SELECT nodeno FROM "
+                                            "rtree_squares_geom_rowid) ORDER BY nodeno",
+                                        -1, &s, NULL), SQLITE_OK);
+    size_t k = 0, nleaves = 0;
+    while (sqlite3_step(s) == SQLITE_ROW) {
+        const unsigned char *b = sqlite3_column_blob(s, 0);
+        size_t m = (size_t)b[2] << 8 | b[3];
+        nleaves++;
+        for (size_t c = 0; c < m; c++, k++) {
+            int64_t id = 0;
+            for (int j = 0; j < 8; j++)
+                id = id << 8 | b[4 + 24 * c + (size_t)j];
+            assert_true(k < n);
+            if (id != want[k].id)
+                fail_msg("cell %zu holds id %lld, want %lld", k, (long long)id,
+                         (long long)want[k].id);
+        }
+    }
+    sqlite3_finalize(s);
+    assert_int_equal(k, n);
+    assert_int_equal(nleaves, leaves);
+    free(boxes);
+    free(want);
+    sqlite3_close(db);
+}
+
 static void test_rounding_contains(void **state)
 {
     (void)state;
@@ -245,6 +375,8 @@ int main(void)
         cmocka_unit_test(test_two_levels),
         cmocka_unit_test(test_three_levels),
         cmocka_unit_test(test_empty_layer),
+        cmocka_unit_test(test_dense_and_sparse_ids),
+        cmocka_unit_test(test_packing_order),
         cmocka_unit_test(test_rounding_contains),
     };
     return cmocka_run_group_tests_name("gpkg_rtree", tests, NULL, NULL);
