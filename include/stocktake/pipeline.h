@@ -58,11 +58,12 @@ typedef struct st_run_options {
     double halo_m;
 } st_run_options;
 
-/* The halo a part reads around its window unless told otherwise: wide
-** enough for the buildings of a town (common practice, no source: a
-** building seldom spans 100 m); a wider one is found and used by the run
-** itself when needed. */
-#define ST_RUN_DEFAULT_HALO_M 200.0
+/* The halo a part reads around its window unless told otherwise: wider
+** than most buildings (common practice, no source: factory halls, malls
+** and hangars reach 300-500 m), because a halo found too narrow costs a
+** second read of every input, while a wide one costs only the checks of
+** the footprints in it (docs/scale.md, docs/performance.md "Windows"). */
+#define ST_RUN_DEFAULT_HALO_M 500.0
 
 typedef struct st_run_layer {
     char *name;                  /* unique layer name in this run */

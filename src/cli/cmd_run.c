@@ -50,7 +50,7 @@ void st_help_run(FILE *out)
             "  --bbox W,S,E,N       the same for a lon/lat box (west <= lon < east,\n"
             "                       south <= lat < north)\n"
             "  --halo METRES        how far around the window a part reads (default\n"
-            "                       200; widened by the run itself when needed)\n"
+            "                       500; widened by the run itself when needed)\n"
             "  --max-memory SIZE    stop early (exit 2) rather than need more memory\n"
             "                       than SIZE (512M, 4G ...); default: 75%% of\n"
             "                       physical memory or 8G, whichever is less\n"

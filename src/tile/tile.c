@@ -122,7 +122,10 @@ st_status st_window_parse_bbox(const char *spec, st_window *w, char *err, size_t
     w->south = v[1];
     w->east = v[2];
     w->north = v[3];
-    snprintf(w->label, sizeof w->label, "bbox %.17g,%.17g,%.17g,%.17g", v[0], v[1], v[2], v[3]);
+    /* the box as the user wrote it (less any spaces before it) */
+    while (*spec == ' ')
+        spec++;
+    snprintf(w->label, sizeof w->label, "bbox %.*s", (int)(sizeof w->label - 6), spec);
     return ST_OK;
 }
 
