@@ -286,6 +286,7 @@ st_status st_run_state_init(run_state *s, const st_run_options *opt, st_diags *d
 
 st_status st_run_state_finish(run_state *s, st_status rc, st_run_result **out)
 {
+    st_run_footprints_cancel(s);   /* workers stop before features go */
     for (size_t i = 0; i < s->nfeatures; i++)
         st_feature_free(s->features[i]);
     st_free(s->features);
