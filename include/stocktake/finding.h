@@ -34,6 +34,11 @@ st_status st_findings_add(st_findings *f, uint64_t bid, const char *code,
                           const char *fmt, ...) ST_PRINTF(7, 8) ST_MUST_CHECK;
 /* Move all findings of 'src' to the end of 'dst' (src left empty). */
 st_status st_findings_move(st_findings *dst, st_findings *src) ST_MUST_CHECK;
+/* Replace the n findings of 'dst' from position 'at' (at + n <= count)
+** with all of 'src', in its order; src is left empty. ST_ERR_NOMEM leaves
+** both lists as they were. */
+st_status st_findings_replace(st_findings *dst, size_t at, size_t n,
+                              st_findings *src) ST_MUST_CHECK;
 /* "note", "warning", "error". */
 const char *st_severity_name(st_severity s);
 

@@ -222,6 +222,21 @@ void st_footprint_checker_set_extent(st_footprint_checker *ck,
 st_status st_footprint_check(st_footprint_checker *ck, const st_footprint_config *cfg,
                              st_feature *f, st_findings *out) ST_MUST_CHECK;
 
+/*
+** 1 when the swapped-axes check could fire on f (borrowed) under the
+** extent 'ext' (borrowed): the centre of its geometry as read lies outside
+** a valid extent and the swapped centre inside. A feature for which this
+** is 0 gets the same outcome from st_footprint_check with or without the
+** extent set; so a stage may check features before their layer's extent
+** is known and check again only those for which this is 1 (after
+** st_footprint_reset).
+*/
+int st_footprint_swap_suspect(const st_footprint_extent *ext, const st_feature *f);
+/* Undo a check on f (borrowed; modified): the geometry as read back in
+** f->geom, status OK, no reason, flags, area or perimeter. Its findings
+** are the caller's to drop. Attributes and schema values are untouched. */
+void st_footprint_reset(st_feature *f);
+
 /* The geometry as read: f->source_geom when the check replaced f->geom,
 ** else f->geom. Borrowed from f. */
 const st_geom *st_footprint_source_geom(const st_feature *f);

@@ -34,6 +34,27 @@ static st_status reserve(st_findings *f, size_t extra)
     return ST_OK;
 }
 
+st_status st_findings_replace(st_findings *dst, size_t at, size_t n, st_findings *src)
+{
+    if (at > dst->count || n > dst->count - at)
+        return ST_ERR_USAGE;
+    if (src->count > n) {
+        st_status rc = reserve(dst, src->count - n);
+        if (rc != ST_OK)
+            return rc;
+    }
+    for (size_t i = at; i < at + n; i++)
+        st_free(dst->items[i].message);
+    size_t tail = dst->count - at - n;
+    if (tail)
+        memmove(dst->items + at + src->count, dst->items + at + n, tail * sizeof *dst->items);
+    if (src->count)
+        memcpy(dst->items + at, src->items, src->count * sizeof *src->items);
+    dst->count = dst->count - n + src->count;
+    src->count = 0;
+    return ST_OK;
+}
+
 st_status st_findings_add(st_findings *f, uint64_t bid, const char *code,
                           st_severity sev, double x, double y, const char *fmt, ...)
 {

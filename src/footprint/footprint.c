@@ -238,6 +238,27 @@ static st_status check_swapped(fp_run *r)
     return ST_OK;
 }
 
+int st_footprint_swap_suspect(const st_footprint_extent *ext, const st_feature *f)
+{
+    double c[2];
+    return ext && ext->valid && st_footprint_center(st_footprint_source_geom(f), c) &&
+           !in_extent(ext, c[0], c[1]) && in_extent(ext, c[1], c[0]);
+}
+
+void st_footprint_reset(st_feature *f)
+{
+    if (f->source_geom.type != ST_GEOM_NULL) {
+        st_geom_clear(&f->geom);
+        f->geom = f->source_geom;
+        st_geom_init(&f->source_geom);
+    }
+    st_free(f->reason);
+    f->reason = NULL;
+    f->status = ST_STATUS_OK;
+    f->flags = 0;
+    f->area_m2 = f->perimeter_m = 0.0;
+}
+
 static st_status check_range(fp_run *r)
 {
     const st_geom *g = &r->work;

@@ -19,7 +19,9 @@
 **         rules, defaults) run on a pool of opt->threads workers (pool.c) over fixed
 **         chunks of ST_POOL_CHUNK features; each chunk's findings, pairs and
 **         diagnostics are kept apart and merged in chunk order, so the
-**         outputs are the same for any number of threads. Reading, exact
+**         outputs are the same for any number of threads. The footprint
+**         checks begin while the read stage reads: each chunk goes to the
+**         other workers as soon as it is read (run_geometry.c). Reading, exact
 **         duplicates, the index, the audit and writing stay in the calling
 **         thread; placement has threads of its own (place.h).
 ** Timings: each stage's wall and CPU seconds and the peak memory so far go
@@ -286,6 +288,7 @@ st_status st_run_state_init(run_state *s, const st_run_options *opt, st_diags *d
 
 st_status st_run_state_finish(run_state *s, st_status rc, st_run_result **out)
 {
+    st_run_footprints_cancel(s);   /* workers stop before features go */
     for (size_t i = 0; i < s->nfeatures; i++)
         st_feature_free(s->features[i]);
     st_free(s->features);

@@ -58,6 +58,9 @@ typedef struct run_state {
     /* the neighbour pairs, kept for a part's halo check */
     st_neighbours_link *links;
     size_t nlinks;
+    /* the footprint checks running while the read stage reads
+    ** (run_geometry.c); NULL outside those two stages */
+    struct fp_overlap *fp;
 } run_state;
 
 
@@ -98,6 +101,13 @@ st_status st_run_load_places(run_state *s);
 /* ---- the stages, in run order (each: ST_OK or the failure that stops) ---- */
 
 st_status st_stage_read(run_state *s);          /* run_read.c */
+/* The footprint checks overlap the read (run_geometry.c): the read stage
+** starts them, hands over each chunk of features it has pushed (layer_end:
+** the layer's last, partial chunk too) and cancels them when it fails;
+** the footprint stage finishes them. */
+st_status st_run_footprints_begin(run_state *s);
+st_status st_run_footprints_feed(run_state *s, int layer_end);
+void st_run_footprints_cancel(run_state *s);
 st_status st_stage_footprints(run_state *s);    /* run_geometry.c */
 st_status st_stage_neighbours(run_state *s);
 st_status st_stage_place(run_state *s);         /* run_attrs.c */
@@ -174,5 +184,28 @@ unsigned st_pool_threads(unsigned requested);
 */
 st_status st_pool_run(unsigned nthreads, size_t nchunks, st_pool_task task,
                       void *ctx) ST_MUST_CHECK;
+
+/*
+** A feed: chunks run on the pool while the caller is still making them.
+** task(ctx, worker, c, item) runs for chunk c (numbered in publish order)
+** with the item published for it (borrowed; the task may write into it;
+** the caller reads it again only after st_feed_finish). Workers 1 ..
+** nthreads-1 are threads started by st_feed_start; worker 0 is the
+** calling thread: with no other worker it runs each chunk inside
+** st_feed_publish, else it helps in st_feed_finish.
+*/
+typedef struct st_feed st_feed;
+typedef st_status (*st_feed_task)(void *ctx, unsigned worker, size_t chunk, void *item);
+/* Owned feed in *out (free with st_feed_finish); ST_ERR_NOMEM. */
+st_status st_feed_start(unsigned nthreads, st_feed_task task, void *ctx,
+                        st_feed **out) ST_MUST_CHECK;
+/* Hand out one more chunk. Returns ST_OK, or the failure of the lowest
+** failed chunk so far (then 'item' is not taken: the producer stops). */
+st_status st_feed_publish(st_feed *f, void *item) ST_MUST_CHECK;
+/* No more chunks: run what is left (the calling thread helps), join the
+** workers, free f. Returns ST_OK or the status of the lowest failed chunk
+** (no chunk starts after a failure). With 'cancel', chunks not yet started
+** never run and ST_OK is returned. f NULL: ST_OK. */
+st_status st_feed_finish(st_feed *f, int cancel);
 
 #endif

@@ -6,6 +6,9 @@
 ** Whatever needs the whole layer is gathered from every feature as it
 ** passes (field types, the robust extent), so a tile (run --tile), which
 ** keeps only the features within reach of its window, learns the same.
+** Each full chunk of kept features (and each layer's last) goes to the
+** footprint checks as soon as it is read (run_geometry.c): they run on the
+** other workers while this thread reads on.
 */
 #include <stdlib.h>
 #include <string.h>
@@ -176,9 +179,11 @@ static st_status take_feature(run_state *s, st_reader *r, layer_scan *ls, size_t
         rc = st_run_guard_feature(&s->budget, f, st_reader_path(r), s->diags);
     if (rc == ST_OK)
         rc = push_feature(s, f);
-    if (rc != ST_OK)
+    if (rc != ST_OK) {
         st_feature_free(f);
-    return rc;
+        return rc;
+    }
+    return st_run_footprints_feed(s, 0);   /* a full chunk: checked now */
 }
 
 static st_status read_layer(run_state *s, size_t l)
@@ -214,6 +219,8 @@ static st_status read_layer(run_state *s, size_t l)
         rc = L->name && L->path && L->format && L->crs ? ST_OK : ST_ERR_NOMEM;
     }
     if (rc == ST_OK)
+        rc = st_run_footprints_feed(s, 1);   /* the layer's last chunk */
+    if (rc == ST_OK)
         rc = st_fields_copy(&s->fields[l], st_reader_fields(r));
     if (rc == ST_OK)
         demote_numeric_fields(&ls, &s->fields[l]);
@@ -226,8 +233,10 @@ static st_status read_layer(run_state *s, size_t l)
 
 st_status st_stage_read(run_state *s)
 {
-    st_status rc = ST_OK;
+    st_status rc = st_run_footprints_begin(s);
     for (size_t l = 0; rc == ST_OK && l < s->opt->ninputs; l++)
         rc = read_layer(s, l);
+    if (rc != ST_OK)
+        st_run_footprints_cancel(s);
     return rc;
 }

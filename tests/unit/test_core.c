@@ -7,10 +7,12 @@
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdint.h>
+#include <stdio.h>
 #include <string.h>
 #include <cmocka.h>
 
 #include "stocktake/core.h"
+#include "stocktake/finding.h"
 #include "stocktake/feature.h"
 #include "stocktake/geomx.h"
 
@@ -343,6 +345,64 @@ static void test_geom_reset_keeps_memory(void **state)
     st_geom_clear(&g);
 }
 
+/* ---- findings: replace a run of one list with another ------------------- */
+
+static void add_n(st_findings *l, uint64_t bid, const char *tag, int n)
+{
+    for (int i = 0; i < n; i++)
+        assert_int_equal(st_findings_add(l, bid, "t.code", ST_SEV_NOTE, 0, 0, "%s%d", tag, i), ST_OK);
+}
+
+/* The messages of l joined by spaces. */
+static void assert_messages(const st_findings *l, const char *want)
+{
+    char got[512] = "";
+    for (size_t i = 0; i < l->count; i++)
+        snprintf(got + strlen(got), sizeof got - strlen(got), "%s%s", i ? " " : "",
+                 l->items[i].message);
+    assert_string_equal(got, want);
+}
+
+static void test_findings_replace(void **state)
+{
+    (void)state;
+    st_findings l, r;
+    st_findings_init(&l);
+    st_findings_init(&r);
+    add_n(&l, 1, "a", 2);
+    add_n(&l, 2, "b", 2);
+    add_n(&l, 3, "c", 1);
+    add_n(&r, 2, "x", 3);
+    assert_int_equal(st_findings_replace(&l, 2, 2, &r), ST_OK);   /* grows */
+    assert_int_equal(r.count, 0);
+    assert_messages(&l, "a0 a1 x0 x1 x2 c0");
+    assert_int_equal(l.items[4].bid, 2);
+    assert_int_equal(l.items[5].bid, 3);
+    assert_int_equal(st_findings_replace(&l, 2, 3, &r), ST_OK);   /* removes */
+    assert_messages(&l, "a0 a1 c0");
+    add_n(&r, 9, "z", 1);
+    assert_int_equal(st_findings_replace(&l, 3, 0, &r), ST_OK);   /* appends */
+    assert_messages(&l, "a0 a1 c0 z0");
+    assert_int_equal(st_findings_replace(&l, 4, 1, &r), ST_ERR_USAGE);
+    /* no memory to grow: both lists as they were */
+    add_n(&r, 5, "y", 40);
+    for (long n = 1;; n++) {
+        st_alloc_fail_after(n);
+        st_status rc = st_findings_replace(&l, 0, 1, &r);
+        st_alloc_fail_after(0);
+        if (rc == ST_OK)
+            break;
+        assert_int_equal(rc, ST_ERR_NOMEM);
+        assert_messages(&l, "a0 a1 c0 z0");
+        assert_int_equal(r.count, 40);
+    }
+    assert_int_equal(l.count, 43);
+    assert_string_equal(l.items[0].message, "y0");
+    assert_string_equal(l.items[40].message, "a1");
+    st_findings_free(&l);
+    st_findings_free(&r);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -361,6 +421,7 @@ int main(void)
         cmocka_unit_test(test_fields_dedupe),
         cmocka_unit_test(test_geom_builder_nomem_loop),
         cmocka_unit_test(test_geom_reset_keeps_memory),
+        cmocka_unit_test(test_findings_replace),
     };
     return cmocka_run_group_tests_name("core", tests, NULL, NULL);
 }

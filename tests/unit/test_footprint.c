@@ -1059,6 +1059,96 @@ static void test_recheck_keeps_source(void **state)
     st_footprint_checker_free(ck);
 }
 
+/* Two findings lists hold the same codes, messages, points and bids. */
+static void assert_same_findings(const st_findings *a, const st_findings *b)
+{
+    assert_int_equal(a->count, b->count);
+    for (size_t i = 0; i < a->count; i++) {
+        assert_string_equal(a->items[i].code, b->items[i].code);
+        assert_string_equal(a->items[i].message, b->items[i].message);
+        assert_int_equal(a->items[i].bid, b->items[i].bid);
+        assert_memory_equal(&a->items[i].x, &b->items[i].x, sizeof a->items[i].x);
+        assert_memory_equal(&a->items[i].y, &b->items[i].y, sizeof a->items[i].y);
+    }
+}
+
+static void assert_same_feature(const st_feature *a, const st_feature *b)
+{
+    assert_int_equal(a->status, b->status);
+    assert_int_equal(a->flags, b->flags);
+    assert_memory_equal(&a->area_m2, &b->area_m2, sizeof a->area_m2);
+    assert_memory_equal(&a->perimeter_m, &b->perimeter_m, sizeof a->perimeter_m);
+    assert_int_equal(!a->reason, !b->reason);
+    if (a->reason)
+        assert_string_equal(a->reason, b->reason);
+    assert_int_equal(a->geom.ncoords, b->geom.ncoords);
+    assert_memory_equal(a->geom.xy, b->geom.xy, 2 * (size_t)a->geom.ncoords * sizeof *a->geom.xy);
+    assert_int_equal(a->source_geom.type, b->source_geom.type);
+    assert_int_equal(a->source_geom.ncoords, b->source_geom.ncoords);
+}
+
+/* What the footprint stage does while reading: check with no extent; then,
+** for a suspect, reset and check again with the extent. The outcome is the
+** one of a check with the extent from the start, under every policy; a
+** footprint that is not a suspect comes out the same with or without it. */
+static void test_check_before_extent(void **state)
+{
+    (void)state;
+    st_footprint_extent ext;
+    layer_extent(21.43, 41.99, &ext);
+    const char *wkts[] = {
+        /* swapped, swapped with a bow-tie, swapped and unclosed */
+        "POLYGON((41.995 21.44,41.995 21.4402,41.9952 21.4402,41.9952 21.44,41.995 21.44))",
+        "POLYGON((41.995 21.44,41.9952 21.4402,41.9952 21.44,41.995 21.4402,41.995 21.44))",
+        "POLYGON((41.995 21.44,41.995 21.4402,41.9952 21.4402,41.9952 21.44))",
+        /* in the layer: clean, bow-tie, fragment */
+        "POLYGON((21.44 41.995,21.4402 41.995,21.4402 41.9952,21.44 41.9952,21.44 41.995))",
+        "POLYGON((21.44 41.995,21.4402 41.9952,21.4402 41.995,21.44 41.9952,21.44 41.995))",
+        "POLYGON((21.44 41.995,21.44001 41.995,21.44001 41.99501,21.44 41.995))",
+        /* far away, its swap outside the layer too */
+        "POLYGON((100 10,100.0002 10,100.0002 10.0002,100 10))",
+    };
+    const int suspect[] = {1, 1, 1, 0, 0, 0, 0};
+    st_repair_policy pols[] = {ST_REPAIR_MAKE_VALID, ST_REPAIR_REJECT, ST_REPAIR_KEEP};
+    st_footprint_checker *ck = checker();
+    for (size_t p = 0; p < 3; p++) {
+        st_footprint_config cfg = st_footprint_config_default();
+        cfg.repair = pols[p];
+        for (size_t w = 0; w < sizeof wkts / sizeof wkts[0]; w++) {
+            st_findings want, got;
+            st_findings_init(&want);
+            st_findings_init(&got);
+            st_feature *a = feature_at(wkts[w], 1.0, 0, 0);
+            st_footprint_checker_set_extent(ck, &ext);
+            check(ck, &cfg, a, &want);
+            assert_int_equal(count_code(&want, "geom.swapped-axes"), suspect[w]);
+            st_feature *b = feature_at(wkts[w], 1.0, 0, 0);
+            st_footprint_checker_set_extent(ck, NULL);
+            check(ck, &cfg, b, &got);
+            assert_int_equal(count_code(&got, "geom.swapped-axes"), 0);
+            assert_int_equal(st_footprint_swap_suspect(&ext, b), suspect[w]);
+            assert_int_equal(st_footprint_swap_suspect(NULL, b), 0);
+            if (suspect[w]) {
+                st_findings_free(&got);
+                st_footprint_reset(b);
+                assert_int_equal(b->status, ST_STATUS_OK);
+                assert_null(b->reason);
+                assert_int_equal(b->flags, 0);
+                assert_int_equal(b->source_geom.type, ST_GEOM_NULL);
+                st_footprint_checker_set_extent(ck, &ext);
+                check(ck, &cfg, b, &got);
+            }
+            assert_same_feature(a, b);
+            assert_same_findings(&want, &got);
+            st_feature_free(a);
+            st_feature_free(b);
+            st_findings_free(&want);
+            st_findings_free(&got);
+        }
+    }
+    st_footprint_checker_free(ck);
+}
+
 /* ---- allocation failure ---------------------------------------------------- */
 
 static void nomem_loop(const char *wkt, st_repair_policy policy)
@@ -1117,6 +1207,7 @@ static void test_nomem(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_check_before_extent),
         cmocka_unit_test(test_invalid_cases_structure),
         cmocka_unit_test(test_invalid_cases_linework),
         cmocka_unit_test(test_invalid_cases_reject_and_keep),
