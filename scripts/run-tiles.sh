@@ -47,7 +47,9 @@
 #          the merge fails: OUT is then not written. Exit 1 when the merge
 #          wrote OUT but the quality gate failed (as 'stocktake run').
 # Limits:  every part's name goes on merge's command line: about 30 bytes a
-#          tile, so some tens of thousands of tiles at most (ARG_MAX).
+#          tile, so some tens of thousands of tiles at most (ARG_MAX); beyond
+#          that, run 'stocktake merge ... PARTS' by hand: merge takes a folder
+#          for the parts in it.
 set -eu
 
 me=run-tiles

@@ -4,9 +4,11 @@
 ** the terminal summary the library rendered (report.h), choose the exit
 ** code: 0 done, 1 gate failed (outputs written), 2 error (nothing written).
 */
+#include <dirent.h>
 #include <errno.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "cli.h"
 #include "stocktake/inventory.h"
@@ -75,6 +77,8 @@ typedef struct run_args {
     const char *cmd;             /* "run" or "merge" */
     st_run_options opt;
     const char **inputs;
+    char **found;                /* merge: part paths found in folders, owned */
+    size_t nfound;
     const char **rules;
     int quiet;
     int timings;
@@ -99,6 +103,83 @@ static void on_progress(void *ud, const char *stage, long long done, long long t
     st_progress *p = ud;
     p->label = stage;
     st_progress_update(p, done, total, done);
+}
+
+static int by_name(const void *a, const void *b)
+{
+    return strcmp(*(char *const *)a, *(char *const *)b);
+}
+
+/* Append 'path' (borrowed) to the list; 0 on no memory. */
+static int push_input(const char ***list, size_t *n, size_t *cap, const char *path)
+{
+    if (*n == *cap) {
+        size_t c = *cap ? 2 * *cap : 64;
+        const char **l = realloc(*list, c * sizeof *l);
+        if (!l)
+            return 0;
+        *list = l;
+        *cap = c;
+    }
+    (*list)[(*n)++] = path;
+    return 1;
+}
+
+/* The parts in folder 'dir' (every *.gpkg not starting with '.'), in name
+** order, appended to the list; their paths are kept in a->found. */
+static int list_folder(run_args *a, const char *dir, const char ***out, size_t *n, size_t *cap)
+{
+    DIR *d = opendir(dir);
+    if (!d) {
+        fprintf(stderr, "stocktake merge: %s: cannot list the folder: %s\n", dir, strerror(errno));
+        return 0;
+    }
+    size_t first = *n;
+    int ok = 1;
+    for (struct dirent *e; ok && (e = readdir(d)) != NULL;) {
+        size_t len = strlen(e->d_name);
+        if (e->d_name[0] == '.' || len < 6 || strcmp(e->d_name + len - 5, ".gpkg") != 0)
+            continue;
+        char **f = realloc(a->found, (a->nfound + 1) * sizeof *f);
+        if (f)
+            a->found = f;
+        char *path = f ? malloc(strlen(dir) + len + 2) : NULL;
+        if (path) {
+            sprintf(path, "%s/%s", dir, e->d_name);
+            a->found[a->nfound++] = path;
+        }
+        ok = path && push_input(out, n, cap, path);
+    }
+    closedir(d);
+    if (ok && *n - first > 1)
+        qsort(*out + first, *n - first, sizeof **out, by_name);
+    return ok;
+}
+
+/* merge: a folder among the inputs stands for the parts in it, so that
+** tens of thousands of parts need not go on one command line. Returns 0
+** (after a message) when a folder cannot be listed or memory runs out. */
+static int expand_folders(run_args *a)
+{
+    const char **out = NULL;
+    size_t n = 0, cap = 0;
+    int ok = 1;
+    for (size_t i = 0; ok && i < a->opt.ninputs; i++) {
+        struct stat st;
+        const char *in = a->inputs[i];
+        if (stat(in, &st) == 0 && S_ISDIR(st.st_mode))
+            ok = list_folder(a, in, &out, &n, &cap);
+        else
+            ok = push_input(&out, &n, &cap, in);
+    }
+    if (!ok) {
+        free(out);
+        return 0;
+    }
+    free(a->inputs);
+    a->inputs = out;
+    a->opt.ninputs = n;
+    return 1;
 }
 
 static int parse_args(int argc, char **argv, run_args *a)
@@ -203,6 +284,8 @@ static int parse_args(int argc, char **argv, run_args *a)
     if ((a->opt.district_key || a->opt.region_key || a->opt.reference) && !a->opt.districts)
         return st_cli_usage_error(a->cmd, "--district-key, --region-key and --reference "
                                          "need --districts");
+    if (!strcmp(a->cmd, "merge") && !expand_folders(a))
+        return ST_EXIT_ERROR;
     a->opt.inputs = a->inputs;
     a->opt.rules = a->rules;
     return ST_EXIT_OK;
@@ -232,6 +315,9 @@ static int run_or_merge(const char *cmdname, int argc, char **argv)
     if (rc != ST_EXIT_OK) {
         free(a.inputs);
         free(a.rules);
+        for (size_t i = 0; i < a.nfound; i++)
+            free(a.found[i]);
+        free(a.found);
         return rc;
     }
     st_progress p;
@@ -279,6 +365,9 @@ static int run_or_merge(const char *cmdname, int argc, char **argv)
     st_buf_free(&cmd);
     free(a.inputs);
     free(a.rules);
+    for (size_t i = 0; i < a.nfound; i++)
+        free(a.found[i]);
+    free(a.found);
     return rc;
 }
 
@@ -295,7 +384,7 @@ int st_cmd_merge(int argc, char **argv)
 void st_help_merge(FILE *out)
 {
     fprintf(out,
-            "usage: stocktake merge [OPTIONS] -o OUT PART...\n"
+            "usage: stocktake merge [OPTIONS] -o OUT PART|FOLDER...\n"
             "\n"
             "Finish a job split into windows: combine the parts that 'stocktake run\n"
             "--tile' or '--bbox' wrote into one inventory and report, the same as a\n"
@@ -306,7 +395,8 @@ void st_help_merge(FILE *out)
             "--timings, --max-memory) and must name the same rules, districts,\n"
             "reference and fill options the parts were made with: each part records\n"
             "them and merge refuses a part made otherwise. The parts must together\n"
-            "hold every feature of every input layer once.\n"
+            "hold every feature of every input layer once. A FOLDER stands for\n"
+            "every .gpkg in it (names starting with '.' left out).\n"
             "\n"
             "exit: 0 done; 1 the gate failed; 2 error, nothing written.\n");
 }

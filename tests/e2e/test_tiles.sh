@@ -37,6 +37,12 @@ done <"$TMP/tiles"
 $PY "$ST_TESTS_ROOT/e2e/compare_inventories.py" "$TMP/single.gpkg" "$TMP/merged.gpkg" \
     "$TMP/single" "$TMP/merged" || fail "tiles merged differ from the single run"
 [ "$(sha "$S/buildings_osm.geojson")" = "$before" ] || fail "input changed"
+# the parts' folder stands for the parts in it
+# shellcheck disable=SC2086
+"$STOCKTAKE" merge -q $opts -o "$TMP/folder.gpkg" "$TMP/parts" 2>"$TMP/err" ||
+    { cat "$TMP/err" >&2; fail "merge of the parts' folder failed"; }
+$PY "$ST_TESTS_ROOT/e2e/compare_inventories.py" "$TMP/single.gpkg" "$TMP/folder.gpkg" >/dev/null ||
+    fail "the parts' folder merged differs from the single run"
 
 # Two boxes split at the town's middle, with a 1 m halo: buildings across
 # the cut make the run read again with a wider one (a note says so).
