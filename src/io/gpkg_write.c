@@ -108,41 +108,12 @@ typedef struct gpkg_writer {
 
 static const char *const gpkg_extensions_list[] = {".gpkg", NULL};
 
-/* EPSG's WKT 1 definition of WGS 84 (EPSG:4326), as in the GeoPackage
-** specification's table of the mandatory rows. */
-static const char wgs84_wkt[] =
-    "GEOGCS[\"WGS 84\",DATUM[\"WGS_1984\",SPHEROID[\"WGS 84\",6378137,"
-    "298.257223563,AUTHORITY[\"EPSG\",\"7030\"]],AUTHORITY[\"EPSG\",\"6326\"]],"
-    "PRIMEM[\"Greenwich\",0,AUTHORITY[\"EPSG\",\"8901\"]],UNIT[\"degree\","
-    "0.0174532925199433,AUTHORITY[\"EPSG\",\"9122\"]],AUTHORITY[\"EPSG\",\"4326\"]]";
-
-/* Core tables, as GeoPackage 1.2 Annex C defines them, and the three
-** mandatory spatial reference systems (Req 10, 11, 13, 21, 58). */
-static const char schema_sql[] =
-    "CREATE TABLE gpkg_spatial_ref_sys (srs_name TEXT NOT NULL, "
-    "srs_id INTEGER NOT NULL PRIMARY KEY, organization TEXT NOT NULL, "
-    "organization_coordsys_id INTEGER NOT NULL, definition TEXT NOT NULL, "
-    "description TEXT);"
-    "CREATE TABLE gpkg_contents (table_name TEXT NOT NULL PRIMARY KEY, "
-    "data_type TEXT NOT NULL, identifier TEXT UNIQUE, description TEXT DEFAULT '', "
-    "last_change DATETIME NOT NULL DEFAULT (strftime('%Y-%m-%dT%H:%M:%fZ','now')), "
-    "min_x DOUBLE, min_y DOUBLE, max_x DOUBLE, max_y DOUBLE, srs_id INTEGER, "
-    "CONSTRAINT fk_gc_r_srs_id FOREIGN KEY (srs_id) REFERENCES "
-    "gpkg_spatial_ref_sys(srs_id));"
-    "CREATE TABLE gpkg_geometry_columns (table_name TEXT NOT NULL, "
-    "column_name TEXT NOT NULL, geometry_type_name TEXT NOT NULL, "
-    "srs_id INTEGER NOT NULL, z TINYINT NOT NULL, m TINYINT NOT NULL, "
-    "CONSTRAINT pk_geom_cols PRIMARY KEY (table_name, column_name), "
-    "CONSTRAINT uk_gc_table_name UNIQUE (table_name), "
-    "CONSTRAINT fk_gc_tn FOREIGN KEY (table_name) REFERENCES gpkg_contents(table_name), "
-    "CONSTRAINT fk_gc_srs FOREIGN KEY (srs_id) REFERENCES gpkg_spatial_ref_sys (srs_id));"
+/* The GeoPackage extensions table (the R-tree extension is registered in it),
+** after the core tables of io/gpkg_core.c. */
+static const char extensions_sql[] =
     "CREATE TABLE gpkg_extensions (table_name TEXT, column_name TEXT, "
     "extension_name TEXT NOT NULL, definition TEXT NOT NULL, scope TEXT NOT NULL, "
-    "CONSTRAINT ge_tce UNIQUE (table_name, column_name, extension_name));"
-    "INSERT INTO gpkg_spatial_ref_sys VALUES ('Undefined cartesian SRS', -1, 'NONE', -1, "
-    "'undefined', 'undefined cartesian coordinate reference system');"
-    "INSERT INTO gpkg_spatial_ref_sys VALUES ('Undefined geographic SRS', 0, 'NONE', 0, "
-    "'undefined', 'undefined geographic coordinate reference system');";
+    "CONSTRAINT ge_tce UNIQUE (table_name, column_name, extension_name))";
 
 /* ---- SQLite helpers -------------------------------------------------------- */
 
@@ -250,14 +221,16 @@ static st_status gpkg_wopen(st_writer *w)
     if (st == ST_OK)
         st = exec(w, "BEGIN", "starting the transaction");
     if (st == ST_OK)
-        st = exec(w, schema_sql, "creating the GeoPackage tables");
+        st = exec(w, st_gpkg_core_sql, "creating the GeoPackage tables");
+    if (st == ST_OK)
+        st = exec(w, extensions_sql, "creating the GeoPackage tables");
     sqlite3_stmt *s = NULL;
     if (st == ST_OK)
         st = prepare(w, "INSERT INTO gpkg_spatial_ref_sys VALUES ('WGS 84 geodetic', "
                         "4326, 'EPSG', 4326, ?, 'longitude/latitude coordinates in "
                         "decimal degrees on the WGS 84 spheroid')", &s, "adding EPSG:4326");
     if (st == ST_OK) {
-        sqlite3_bind_text(s, 1, wgs84_wkt, -1, SQLITE_STATIC);
+        sqlite3_bind_text(s, 1, st_gpkg_wgs84_wkt, -1, SQLITE_STATIC);
         st = step_done(w, s, "adding EPSG:4326");
     }
     sqlite3_finalize(s);

@@ -189,4 +189,16 @@ st_status st_gpkg_rtree_load(struct sqlite3 *db, const char *name, st_gpkg_box *
 /* Append name as an SQL identifier in double quotes ("" inside). */
 st_status st_gpkg_quote_ident(st_buf *b, const char *name) ST_MUST_CHECK;
 
+/* "dir/name.ext" -> "dir/.name.tmp-PID.ext": where a writer puts what it
+** writes until the commit renames it (hidden, same folder so the rename is
+** atomic, same extension so format libraries that look at it behave).
+** Returns owned, NULL on no memory. */
+char *st_io_temp_name(const char *path);
+
+/* The GeoPackage core every GeoPackage written here starts with
+** (io/gpkg_core.c): the core tables with the two undefined SRS rows, and
+** EPSG's WKT of WGS 84 for the EPSG:4326 row. */
+extern const char st_gpkg_core_sql[];
+extern const char st_gpkg_wgs84_wkt[];
+
 #endif

@@ -45,38 +45,10 @@ struct st_part_writer {
     int committed;
 };
 
-/* EPSG's WKT 1 of WGS 84, as in the GeoPackage specification's table of
-** mandatory rows (the same text as io/gpkg_write.c). */
-static const char wgs84_wkt[] =
-    "GEOGCS[\"WGS 84\",DATUM[\"WGS_1984\",SPHEROID[\"WGS 84\",6378137,"
-    "298.257223563,AUTHORITY[\"EPSG\",\"7030\"]],AUTHORITY[\"EPSG\",\"6326\"]],"
-    "PRIMEM[\"Greenwich\",0,AUTHORITY[\"EPSG\",\"8901\"]],UNIT[\"degree\","
-    "0.0174532925199433,AUTHORITY[\"EPSG\",\"9122\"]],AUTHORITY[\"EPSG\",\"4326\"]]";
-
-/* GeoPackage core tables (Annex C: Req 10, 11, 13) and the part's own. */
+/* The part's own tables, after the GeoPackage core of io/gpkg_core.c
+** (gpkg_geometry_columns stays empty, but GDAL finds no layer at all
+** without it). */
 static const char schema_sql[] =
-    "CREATE TABLE gpkg_spatial_ref_sys (srs_name TEXT NOT NULL, "
-    "srs_id INTEGER NOT NULL PRIMARY KEY, organization TEXT NOT NULL, "
-    "organization_coordsys_id INTEGER NOT NULL, definition TEXT NOT NULL, "
-    "description TEXT);"
-    "CREATE TABLE gpkg_contents (table_name TEXT NOT NULL PRIMARY KEY, "
-    "data_type TEXT NOT NULL, identifier TEXT UNIQUE, description TEXT DEFAULT '', "
-    "last_change DATETIME NOT NULL DEFAULT (strftime('%Y-%m-%dT%H:%M:%fZ','now')), "
-    "min_x DOUBLE, min_y DOUBLE, max_x DOUBLE, max_y DOUBLE, srs_id INTEGER, "
-    "CONSTRAINT fk_gc_r_srs_id FOREIGN KEY (srs_id) REFERENCES "
-    "gpkg_spatial_ref_sys(srs_id));"
-    /* Empty, but GDAL finds no layer at all without it. */
-    "CREATE TABLE gpkg_geometry_columns (table_name TEXT NOT NULL, "
-    "column_name TEXT NOT NULL, geometry_type_name TEXT NOT NULL, "
-    "srs_id INTEGER NOT NULL, z TINYINT NOT NULL, m TINYINT NOT NULL, "
-    "CONSTRAINT pk_geom_cols PRIMARY KEY (table_name, column_name), "
-    "CONSTRAINT uk_gc_table_name UNIQUE (table_name), "
-    "CONSTRAINT fk_gc_tn FOREIGN KEY (table_name) REFERENCES gpkg_contents(table_name), "
-    "CONSTRAINT fk_gc_srs FOREIGN KEY (srs_id) REFERENCES gpkg_spatial_ref_sys (srs_id));"
-    "INSERT INTO gpkg_spatial_ref_sys VALUES ('Undefined cartesian SRS', -1, 'NONE', -1, "
-    "'undefined', 'undefined cartesian coordinate reference system');"
-    "INSERT INTO gpkg_spatial_ref_sys VALUES ('Undefined geographic SRS', 0, 'NONE', 0, "
-    "'undefined', 'undefined geographic coordinate reference system');"
     "CREATE TABLE part_info (id INTEGER PRIMARY KEY, key TEXT NOT NULL UNIQUE, value TEXT);"
     "CREATE TABLE part_layers (id INTEGER PRIMARY KEY, name TEXT, path TEXT, "
     "format TEXT, crs TEXT, read INTEGER NOT NULL);"
@@ -171,19 +143,6 @@ static void bind_text(sqlite3_stmt *s, int i, const char *t)
 
 /* ---- open ---------------------------------------------------------------- */
 
-/* "dir/name.ext" -> "dir/.name.tmp-PID.ext", as io/writer.c names its
-** temporary files: hidden, same folder (rename is then atomic). */
-static char *temp_name(const char *path)
-{
-    const char *slash = strrchr(path, '/');
-    size_t dirlen = slash ? (size_t)(slash - path + 1) : 0;
-    const char *base = path + dirlen;
-    const char *ext = st_path_ext(path);
-    size_t stemlen = strlen(base) - strlen(ext);
-    return st_strdup_printf("%.*s.%.*s.tmp-%ld%s", (int)dirlen, path,
-                            (int)stemlen, base, (long)getpid(), ext);
-}
-
 /* gpkg_contents rows (all 'attributes'), EPSG:4326 and the format key. */
 static st_status fill_header(st_part_writer *w)
 {
@@ -195,7 +154,7 @@ static st_status fill_header(st_part_writer *w)
                               "4326, 'EPSG', 4326, ?, 'longitude/latitude coordinates in "
                               "decimal degrees on the WGS 84 spheroid')", &s, "adding EPSG:4326");
     if (rc == ST_OK) {
-        sqlite3_bind_text(s, 1, wgs84_wkt, -1, SQLITE_STATIC);
+        sqlite3_bind_text(s, 1, st_gpkg_wgs84_wkt, -1, SQLITE_STATIC);
         rc = step_done(w, s, "adding EPSG:4326", NULL);
     }
     sqlite3_finalize(s);
@@ -244,6 +203,8 @@ static st_status create_file(st_part_writer *w)
     if (st == ST_OK)
         st = exec(w, "BEGIN", "starting the transaction");
     if (st == ST_OK)
+        st = exec(w, st_gpkg_core_sql, "creating the part's tables");
+    if (st == ST_OK)
         st = exec(w, schema_sql, "creating the part's tables");
     if (st == ST_OK)
         st = fill_header(w);
@@ -265,7 +226,7 @@ st_status st_part_writer_open(const char *path, st_diags *diags, st_part_writer 
     w->diags = diags;
     st_buf_init(&w->record, ST_GPKG_MAX_BLOB);
     w->path = st_strdup(path);
-    w->tmp_path = temp_name(path);
+    w->tmp_path = st_io_temp_name(path);
     st_status rc = w->path && w->tmp_path ? create_file(w) : ST_ERR_NOMEM;
     if (rc != ST_OK) {
         st_part_writer_close(w);

@@ -44,9 +44,7 @@ st_status st_writer_fail(st_writer *w, st_status code, const char *fmt, ...)
     return code;
 }
 
-/* "dir/name.ext" -> "dir/.name.tmp-PID.ext" (hidden, same folder, same
-** extension so format libraries that look at it behave). */
-static char *temp_name(const char *path)
+char *st_io_temp_name(const char *path)
 {
     const char *slash = strrchr(path, '/');
     size_t dirlen = slash ? (size_t)(slash - path + 1) : 0;
@@ -66,7 +64,7 @@ st_status st_writer_open(const char *path, st_diags *diags, st_writer **out)
     w->diags = diags;
     st_buf_init(&w->notes, 0);
     w->path = st_strdup(path);
-    w->tmp_path = temp_name(path);
+    w->tmp_path = st_io_temp_name(path);
     if (!w->path || !w->tmp_path) {
         st_writer_close(w);
         return ST_ERR_NOMEM;
