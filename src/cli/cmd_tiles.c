@@ -5,13 +5,18 @@
 **
 ** A tile is listed when some footprint's box meets it: the tile that owns
 ** a building (tile.h) is always among those its box meets, since the
-** point that decides lies inside the box. Footprints without coordinates
-** are held by every part and need no tile of their own.
+** point that decides lies inside the box. A footprint the footprint stage
+** will take for one with latitude and longitude swapped (its centre
+** outside the layer's robust extent, the swapped centre inside) is swapped
+** back before its owner is decided, so the tiles of its swapped box are
+** listed too. Footprints without coordinates are held by every part and
+** need no tile of their own.
 */
 #include <stdlib.h>
 #include <string.h>
 
 #include "cli.h"
+#include "stocktake/footprint.h"
 #include "stocktake/io.h"
 #include "stocktake/tile.h"
 
@@ -52,12 +57,10 @@ static int by_key(const void *a, const void *b)
     return x < y ? -1 : x > y;
 }
 
-/* The tiles the box of f meets (only its last key when it repeats). */
-static int add_feature(key_list *k, const st_feature *f, int z)
+/* The tiles box b meets (only its last key when it repeats). */
+static int add_box(key_list *k, const double b[4], int z)
 {
-    double b[4];
-    if (!st_geom_bbox(&f->geom, b) || !(b[0] >= -180 && b[2] <= 180 && b[1] >= -90 &&
-                                        b[3] <= 90))
+    if (!(b[0] >= -180 && b[2] <= 180 && b[1] >= -90 && b[3] <= 90))
         return 1;
     uint32_t x0, y0, x1, y1;
     st_tile_of(b[0], b[3], z, &x0, &y0);
@@ -70,6 +73,60 @@ static int add_feature(key_list *k, const st_feature *f, int z)
     return 1;
 }
 
+/* A layer's footprint boxes and centres, kept until its extent is known. */
+typedef struct layer_boxes {
+    double *box;                 /* 4 per footprint with coordinates */
+    double *centre;              /* 2 per footprint */
+    size_t n, cap;
+} layer_boxes;
+
+static int keep_box(layer_boxes *lb, const st_feature *f)
+{
+    double b[4], c[2];
+    if (!st_geom_bbox(&f->geom, b) || !st_footprint_center(&f->geom, c))
+        return 1;
+    if (lb->n == lb->cap) {
+        size_t cap = lb->cap ? 2 * lb->cap : 4096;
+        double *nb = realloc(lb->box, 4 * cap * sizeof *nb);
+        if (nb)
+            lb->box = nb;
+        double *nc = nb ? realloc(lb->centre, 2 * cap * sizeof *nc) : NULL;
+        if (!nc)
+            return 0;
+        lb->centre = nc;
+        lb->cap = cap;
+    }
+    memcpy(lb->box + 4 * lb->n, b, sizeof b);
+    memcpy(lb->centre + 2 * lb->n, c, sizeof c);
+    lb->n++;
+    return 1;
+}
+
+static int inside(const st_footprint_extent *e, double x, double y)
+{
+    return x >= e->xmin && x <= e->xmax && y >= e->ymin && y <= e->ymax;
+}
+
+/* Every box's tiles, and the swapped box's for footprints the footprint
+** stage will swap back (its test: footprint.c check_swapped). */
+static int add_layer(key_list *k, const layer_boxes *lb, int z)
+{
+    st_footprint_extent e;
+    if (st_footprint_extent_compute(lb->centre, lb->n, &e) != ST_OK)
+        return 0;
+    for (size_t i = 0; i < lb->n; i++) {
+        const double *b = lb->box + 4 * i, *c = lb->centre + 2 * i;
+        if (!add_box(k, b, z))
+            return 0;
+        if (e.valid && !inside(&e, c[0], c[1]) && inside(&e, c[1], c[0])) {
+            double sw[4] = {b[1], b[0], b[3], b[2]};
+            if (!add_box(k, sw, z))
+                return 0;
+        }
+    }
+    return 1;
+}
+
 static int read_input(const char *path, const char *crs, int z, key_list *k)
 {
     st_read_options ro = ST_READ_OPTIONS_DEFAULT;
@@ -77,17 +134,22 @@ static int read_input(const char *path, const char *crs, int z, key_list *k)
     st_diags d;
     st_diags_init(&d);
     st_reader *r = NULL;
+    layer_boxes lb = {NULL, NULL, 0, 0};
     st_status rc = st_reader_open(path, &ro, &d, &r);
     while (rc == ST_OK) {
         st_feature *f = NULL;
         rc = st_reader_next(r, &f);
         if (rc != ST_OK || !f)
             break;
-        int ok = add_feature(k, f, z);
+        int ok = keep_box(&lb, f);
         st_feature_free(f);
         if (!ok)
             rc = ST_ERR_NOMEM;
     }
+    if (rc == ST_OK && !add_layer(k, &lb, z))
+        rc = ST_ERR_NOMEM;
+    free(lb.box);
+    free(lb.centre);
     st_reader_close(r);
     st_cli_print_diags(&d);
     st_diags_free(&d);

@@ -60,6 +60,32 @@ grep -q "reading again with" "$TMP/err" || fail "no halo widening noted: $(cat "
 $PY "$ST_TESTS_ROOT/e2e/compare_inventories.py" "$TMP/single.gpkg" "$TMP/boxes.gpkg" ||
     fail "boxes merged differ from the single run"
 
+# A footprint drawn with latitude and longitude swapped, whose true place
+# is a tile no other footprint touches: tiles lists that tile too (the
+# footprint stage swaps it back before its owner is decided).
+$PY - "$TMP/swapped.geojson" <<'PYEOF' || fail "could not write the swapped layer"
+import json, sys
+def square(x, y, d=0.0001):
+    return [[x, y], [x + d, y], [x + d, y + d], [x, y + d], [x, y]]
+feats = [{"type": "Feature", "properties": {},
+          "geometry": {"type": "Polygon", "coordinates": [square(10 + i / 100, 50 + j / 100)]}}
+         for i in range(10) for j in range(10) if (i, j) != (5, 5)]
+feats.append({"type": "Feature", "properties": {"swapped": 1}, "geometry": {
+    "type": "Polygon", "coordinates": [[[y, x] for x, y in square(10.05, 50.05)]]}})
+json.dump({"type": "FeatureCollection", "features": feats}, open(sys.argv[1], "w"))
+PYEOF
+mkdir -p "$TMP/swparts"
+"$STOCKTAKE" tiles -z 16 "$TMP/swapped.geojson" >"$TMP/swtiles" || fail "tiles of the swapped layer"
+grep -qx "16/34597/22212" "$TMP/swtiles" || fail "the swapped footprint's own tile is not listed"
+while read -r t; do
+    "$STOCKTAKE" run -q --tile "$t" -o "$TMP/swparts/$(echo "$t" | tr / -).gpkg" \
+        "$TMP/swapped.geojson" || fail "swapped part $t"
+done <"$TMP/swtiles"
+"$STOCKTAKE" merge -q -o "$TMP/swmerged.gpkg" "$TMP/swparts" || fail "merge of the swapped layer"
+"$STOCKTAKE" run -q -o "$TMP/swsingle.gpkg" "$TMP/swapped.geojson" || fail "single swapped run"
+$PY "$ST_TESTS_ROOT/e2e/compare_inventories.py" "$TMP/swsingle.gpkg" "$TMP/swmerged.gpkg" >/dev/null ||
+    fail "the swapped layer merged differs from the single run"
+
 # Refused merges: exit 2, a message, nothing written.
 first=$(ls "$TMP"/parts/*.gpkg | head -n 1)
 rest=$(ls "$TMP"/parts/*.gpkg | tail -n +2)
