@@ -15,16 +15,22 @@
 **          message names the part and what differs. ST_ERR_FORMAT for a
 **          damaged part (part.h); ST_ERR_NOMEM.
 */
+#include <stdarg.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "stocktake/part.h"
 #include "pipelineInt.h"
 
-static st_status fail(run_state *s, const char *fmt, const char *a, const char *b,
-                      const char *c)
+static st_status fail(run_state *s, const char *fmt, ...) ST_PRINTF(2, 3);
+static st_status fail(run_state *s, const char *fmt, ...)
 {
-    return st_diags_add(s->diags, ST_SEV_ERROR, ST_ERR_USAGE, NULL, fmt, a, b, c);
+    va_list ap;
+    va_start(ap, fmt);
+    st_diags_addv(s->diags, ST_SEV_ERROR, ST_ERR_USAGE, NULL, fmt, ap);
+    va_end(ap);
+    return ST_ERR_USAGE;
 }
 
 /* The part was made with the rules, districts, reference and options of
@@ -77,8 +83,8 @@ static st_status take_layers(run_state *s, const st_part *p, int first)
         same = !strcmp(pl[l].name, r->layers[l].name) &&
                !strcmp(pl[l].path, r->layers[l].path) && pl[l].read == r->layers[l].read;
     if (!same)
-        return fail(s, "%s: made from other input layers than %s%s", st_part_path(p),
-                    s->opt->inputs[0], " (the parts of one job read the same inputs)");
+        return fail(s, "%s: made from other input layers than %s (the parts of one job "
+                    "read the same inputs)", st_part_path(p), s->opt->inputs[0]);
     return ST_OK;
 }
 
@@ -133,13 +139,11 @@ static st_status settle(run_state *s)
 {
     if (s->nfeatures > 1)
         qsort(s->features, s->nfeatures, sizeof *s->features, by_bid);
-    char a[32], b[32];
     for (size_t i = 1; i < s->nfeatures; i++)
-        if (s->features[i]->bid == s->features[i - 1]->bid) {
-            snprintf(a, sizeof a, "%llu", (unsigned long long)s->features[i]->bid);
-            return fail(s, "building %s is in two parts: their windows overlap%s%s", a, "",
-                        " (give each window once; tiles of one zoom never overlap)");
-        }
+        if (s->features[i]->bid == s->features[i - 1]->bid)
+            return fail(s, "building %llu is in two parts: their windows overlap (give each "
+                        "window once; tiles of one zoom never overlap)",
+                        (unsigned long long)s->features[i]->bid);
     uint64_t *count = st_calloc(s->res->nlayers + 1, sizeof *count);
     if (!count)
         return ST_ERR_NOMEM;
@@ -148,13 +152,11 @@ static st_status settle(run_state *s)
             count[s->features[i]->layer]++;
     st_status rc = ST_OK;
     for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++)
-        if (count[l] != s->res->layers[l].read) {
-            snprintf(a, sizeof a, "%llu", (unsigned long long)count[l]);
-            snprintf(b, sizeof b, "%llu", (unsigned long long)s->res->layers[l].read);
-            rc = fail(s, "the parts hold %s of the %s features of layer '%s': a window is "
+        if (count[l] != s->res->layers[l].read)
+            rc = fail(s, "the parts hold %llu of the %llu features of layer '%s': a window is "
                       "missing (run every window of the layer, then merge all the parts)",
-                      a, b, s->res->layers[l].name);
-        }
+                      (unsigned long long)count[l], (unsigned long long)s->res->layers[l].read,
+                      s->res->layers[l].name);
     st_free(count);
     s->nread = s->nfeatures;
     return rc;
