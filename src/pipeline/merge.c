@@ -16,7 +16,6 @@
 **          damaged part (part.h); ST_ERR_NOMEM.
 */
 #include <stdarg.h>
-#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
