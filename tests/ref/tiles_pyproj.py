@@ -1,7 +1,7 @@
 #!/usr/bin/python3
 """Tile addresses of `stocktake tiles` against pyproj's web-mercator
 projection (EPSG:3857, the tile scheme's own definition): random points
-over the mercator range, one GeoJSON layer of points per run; at each zoom
+in both hemispheres and on both sides of the antimeridian's meridian, one GeoJSON layer of points per run; at each zoom
 the set of tiles stocktake lists must equal the tiles pyproj's metres give
 (x = floor((X + R) / 2R * 2^z), y = floor((R - Y) / 2R * 2^z), R =
 20037508.342789244 m, half the projection's extent).
@@ -20,7 +20,13 @@ R = 20037508.342789244
 
 def main(st, work):
     rnd = random.Random(20261202)
-    pts = [(rnd.uniform(-180, 180), rnd.uniform(-85, 85)) for _ in range(400)]
+    # Longitudes beyond +-85 degrees: `tiles` also lists the tiles of a
+    # footprint's swapped box when the footprint stage would take it for
+    # one with swapped axes (its centre outside the layer's robust extent,
+    # the swapped centre inside); with |lon| > 85 a swapped centre is never
+    # a latitude, so every tile listed is a point's own.
+    pts = [(rnd.choice((-1, 1)) * rnd.uniform(85.5, 180), rnd.uniform(-85, 85))
+           for _ in range(400)]
     pts += [(rnd.uniform(-126.35, -126.10), rnd.uniform(-47.97, -47.85)) for _ in range(400)]
     path = work + "/points.geojson"
     feats = [{"type": "Feature", "properties": {}, "geometry": {"type": "Point", "coordinates": p}}
