@@ -2,8 +2,11 @@
 ** io/gpkg_core.c -- what every GeoPackage this project writes begins with
 ** (the inventory's, io/gpkg_write.c, and a part's, io/part_write.c): the
 ** core tables and the definition of WGS 84, kept in one place so the two
-** files stay the same GeoPackage.
+** files stay the same GeoPackage; and the test both readers make of an
+** SQLite file's header.
 */
+#include <string.h>
+
 #include "ioInt.h"
 
 /* EPSG's WKT 1 definition of WGS 84 (EPSG:4326), as in the GeoPackage
@@ -39,3 +42,28 @@ const char st_gpkg_core_sql[] =
     "'undefined', 'undefined cartesian coordinate reference system');"
     "INSERT INTO gpkg_spatial_ref_sys VALUES ('Undefined geographic SRS', 0, 'NONE', 0, "
     "'undefined', 'undefined geographic coordinate reference system');";
+
+static uint32_t be32(const unsigned char *p)
+{
+    return (uint32_t)p[0] << 24 | (uint32_t)p[1] << 16 | (uint32_t)p[2] << 8 | p[3];
+}
+
+/* SQLite reads a short last page as zeros, so a file cut inside its last
+** page would pass unnoticed: compare the size with the page count the
+** header states (trusted when the "version-valid-for" number at offset 92
+** equals the change counter at offset 24, as SQLite does). */
+int st_sqlite_header_check(const unsigned char *h, size_t n, long long size, long long *stated)
+{
+    if (n < 16 || memcmp(h, "SQLite format 3", 16) != 0)
+        return ST_SQLITE_NOT_SQLITE;
+    if (n < 100)
+        return ST_SQLITE_SHORT_HEADER;
+    long long page = (long long)(h[16] << 8 | h[17]);
+    if (page == 1)
+        page = 65536;
+    long long pages = be32(h + 28);
+    *stated = page * pages;
+    if (pages && be32(h + 92) == be32(h + 24) && page * pages > size)
+        return ST_SQLITE_TRUNCATED;
+    return ST_SQLITE_OK;
+}

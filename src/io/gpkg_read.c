@@ -139,15 +139,7 @@ static char *read_uri(const char *path)
     return st_gpkg_uri(path, has_wal ? "mode=ro" : "immutable=1");
 }
 
-static uint32_t be32(const unsigned char *p)
-{
-    return (uint32_t)p[0] << 24 | (uint32_t)p[1] << 16 | (uint32_t)p[2] << 8 | p[3];
-}
-
-/* SQLite reads a short last page as zeros, so a file cut inside its last
-** page would pass unnoticed: compare the size with the page count the
-** SQLite header states (trusted when the "version-valid-for" number at
-** offset 92 equals the change counter at offset 24, as SQLite does). */
+/* A file cut short: io/gpkg_core.c's header test. */
 static st_status check_size(st_reader *r, long long size)
 {
     FILE *f = fopen(r->path, "rb");
@@ -156,20 +148,17 @@ static st_status check_size(st_reader *r, long long size)
     unsigned char h[100];
     size_t n = fread(h, 1, sizeof h, f);
     fclose(f);
-    if (n < 16 || memcmp(h, "SQLite format 3", 16) != 0)
-        return ST_OK;   /* SQLite itself says it is not a database */
-    if (n < sizeof h)
+    long long stated = 0;
+    switch (st_sqlite_header_check(h, n, size, &stated)) {
+    case ST_SQLITE_SHORT_HEADER:
         return st_reader_fail(r, ST_ERR_FORMAT, -1, "the GeoPackage is truncated "
                               "(%lld bytes, less than the 100-byte SQLite header)", size);
-    long long page = (long long)(h[16] << 8 | h[17]);
-    if (page == 1)
-        page = 65536;
-    long long pages = be32(h + 28);
-    if (pages && be32(h + 92) == be32(h + 24) && page * pages > size)
+    case ST_SQLITE_TRUNCATED:
         return st_reader_fail(r, ST_ERR_FORMAT, -1, "the GeoPackage is truncated: its "
-                              "header states %lld bytes, the file has %lld",
-                              page * pages, size);
-    return ST_OK;
+                              "header states %lld bytes, the file has %lld", stated, size);
+    default:
+        return ST_OK;   /* not SQLite: SQLite itself says so */
+    }
 }
 
 static st_status open_db(st_reader *r, gpkg_reader *g)

@@ -201,4 +201,11 @@ char *st_io_temp_name(const char *path);
 extern const char st_gpkg_core_sql[];
 extern const char st_gpkg_wgs84_wkt[];
 
+/* The first n (up to 100) bytes h of a file of 'size' bytes, as SQLite
+** writes its header: not an SQLite file, shorter than the 100-byte header,
+** shorter than the pages the header states (*stated: their bytes), or fine
+** (io/gpkg_core.c says why SQLite itself would not notice). */
+enum { ST_SQLITE_OK = 0, ST_SQLITE_NOT_SQLITE, ST_SQLITE_SHORT_HEADER, ST_SQLITE_TRUNCATED };
+int st_sqlite_header_check(const unsigned char *h, size_t n, long long size, long long *stated);
+
 #endif

@@ -117,11 +117,6 @@ static int64_t column_int(sqlite3_stmt *s, int i, int *bad)
     return sqlite3_column_int64(s, i);
 }
 
-static uint32_t be32(const unsigned char *b)
-{
-    return (uint32_t)b[0] << 24 | (uint32_t)b[1] << 16 | (uint32_t)b[2] << 8 | b[3];
-}
-
 /* Not an SQLite file, or one cut short: SQLite reads a short last page as
 ** zeros and would not notice (io/gpkg_read.c explains the header test). */
 static st_status check_file(st_part *p)
@@ -137,18 +132,18 @@ static st_status check_file(st_part *p)
     unsigned char h[100];
     size_t n = fread(h, 1, sizeof h, f);
     fclose(f);
-    if (n < 16 || memcmp(h, "SQLite format 3", 16) != 0)
+    long long stated = 0;
+    switch (st_sqlite_header_check(h, n, (long long)st.st_size, &stated)) {
+    case ST_SQLITE_NOT_SQLITE:
         return pfail(p, ST_ERR_FORMAT, "not a stocktake part: not an SQLite database");
-    if (n < sizeof h)
+    case ST_SQLITE_SHORT_HEADER:
         return pfail(p, ST_ERR_FORMAT, "the part is truncated (%zu bytes)", n);
-    long long page = (long long)(h[16] << 8 | h[17]);
-    if (page == 1)
-        page = 65536;
-    long long pages = be32(h + 28);
-    if (pages && be32(h + 92) == be32(h + 24) && page * pages > (long long)st.st_size)
+    case ST_SQLITE_TRUNCATED:
         return pfail(p, ST_ERR_FORMAT, "the part is truncated: its header states %lld "
-                     "bytes, the file has %lld", page * pages, (long long)st.st_size);
-    return ST_OK;
+                     "bytes, the file has %lld", stated, (long long)st.st_size);
+    default:
+        return ST_OK;
+    }
 }
 
 static st_status open_db(st_part *p)
