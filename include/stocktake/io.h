@@ -146,6 +146,14 @@ int st_writer_supports(const char *path);
 ** memory. */
 char *st_gpkg_uri(const char *path, const char *query);
 
+/* Open the SQLite file at 'uri' (st_gpkg_uri) read-only and hardened for
+** files from anywhere: defensive mode, an untrusted schema (its triggers
+** and views call no function with side effects), no extension loading,
+** values of at most 'max_length' bytes. Returns SQLite's result code;
+** *db is set as sqlite3_open_v2 sets it (close it even on failure). */
+struct sqlite3;
+int st_gpkg_open_readonly(const char *uri, int max_length, struct sqlite3 **db);
+
 /* ---- coordinate reference systems (PROJ) ------------------------------ */
 
 typedef struct st_crs_transform st_crs_transform;

@@ -241,16 +241,10 @@ static st_status gpkg_open(gpkg *g)
     char *uri = st_gpkg_uri(g->path, "immutable=1");
     if (!uri)
         return ST_ERR_NOMEM;
-    int rc = sqlite3_open_v2(uri, &g->db, SQLITE_OPEN_READONLY | SQLITE_OPEN_URI, NULL);
+    int rc = st_gpkg_open_readonly(uri, (int)ST_EXPLAIN_MAX_VALUE, &g->db);
     st_free(uri);
     if (rc != SQLITE_OK)
         return sql_error(g, rc, "opening the file");
-    sqlite3_db_config(g->db, SQLITE_DBCONFIG_DEFENSIVE, 1, NULL);
-#ifdef SQLITE_DBCONFIG_TRUSTED_SCHEMA
-    sqlite3_db_config(g->db, SQLITE_DBCONFIG_TRUSTED_SCHEMA, 0, NULL);
-#endif
-    sqlite3_db_config(g->db, SQLITE_DBCONFIG_ENABLE_LOAD_EXTENSION, 0, NULL);
-    sqlite3_limit(g->db, SQLITE_LIMIT_LENGTH, (int)ST_EXPLAIN_MAX_VALUE);
     return ST_OK;
 }
 

@@ -329,17 +329,27 @@ static st_status fill_building(void *ctx, size_t k, st_row *row)
     return ST_OK;
 }
 
-st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,
-                                       size_t n, const char *const *district_names)
+/* One whole layer: begin it, its n rows from 'fill' (on the writer's
+** helper threads), end it. */
+static st_status write_layer(st_inventory *inv, int layer, const char *name,
+                             const st_fields *fields, st_geom_type type, size_t n,
+                             st_row_fill fill, void *ctx)
 {
-    st_writer *w = writer_for(inv, L_BUILDINGS);
-    feature_rows fr = {inv, fs, district_names};
-    st_status rc = st_writer_begin_layer(w, "buildings", &inv->bfields, ST_GEOM_MULTIPOLYGON);
+    st_writer *w = writer_for(inv, layer);
+    st_status rc = st_writer_begin_layer(w, name, fields, type);
     if (rc == ST_OK)
-        rc = st_writer_write_rows(w, n, fill_building, &fr, inv->threads);
+        rc = st_writer_write_rows(w, n, fill, ctx, inv->threads);
     if (rc == ST_OK)
         rc = st_writer_end_layer(w);
     return rc;
+}
+
+st_status st_inventory_write_buildings(st_inventory *inv, st_feature *const *fs,
+                                       size_t n, const char *const *district_names)
+{
+    feature_rows fr = {inv, fs, district_names};
+    return write_layer(inv, L_BUILDINGS, "buildings", &inv->bfields, ST_GEOM_MULTIPOLYGON, n,
+                       fill_building, &fr);
 }
 
 static st_status fill_set_aside(void *ctx, size_t k, st_row *row)
@@ -369,14 +379,9 @@ static st_status fill_set_aside(void *ctx, size_t k, st_row *row)
 st_status st_inventory_write_set_aside(st_inventory *inv, st_feature *const *fs, size_t n,
                                       const char *const *district_names)
 {
-    st_writer *w = writer_for(inv, L_SET_ASIDE);
     feature_rows fr = {inv, fs, district_names};
-    st_status rc = st_writer_begin_layer(w, "set_aside", &inv->sfields, ST_GEOM_OTHER);
-    if (rc == ST_OK)
-        rc = st_writer_write_rows(w, n, fill_set_aside, &fr, inv->threads);
-    if (rc == ST_OK)
-        rc = st_writer_end_layer(w);
-    return rc;
+    return write_layer(inv, L_SET_ASIDE, "set_aside", &inv->sfields, ST_GEOM_OTHER, n,
+                       fill_set_aside, &fr);
 }
 
 static st_status fill_finding(void *ctx, size_t k, st_row *row)
@@ -412,13 +417,9 @@ st_status st_inventory_write_findings(st_inventory *inv, const st_findings *fl)
     st_status rc = ST_OK;
     for (int i = 0; rc == ST_OK && i < 4; i++)
         rc = st_fields_add(&fields, cols[i], types[i], 0, 0, NULL);
-    st_writer *w = writer_for(inv, L_FINDINGS);
     if (rc == ST_OK)
-        rc = st_writer_begin_layer(w, "findings", &fields, ST_GEOM_POINT);
-    if (rc == ST_OK)
-        rc = st_writer_write_rows(w, fl->count, fill_finding, (void *)fl, inv->threads);
-    if (rc == ST_OK)
-        rc = st_writer_end_layer(w);
+        rc = write_layer(inv, L_FINDINGS, "findings", &fields, ST_GEOM_POINT, fl->count,
+                         fill_finding, (void *)fl);
     st_fields_free(&fields);
     return rc;
 }
@@ -554,13 +555,9 @@ st_status st_inventory_write_districts(st_inventory *inv, const st_audit *a)
     st_fields fields;
     st_fields_init(&fields);
     st_status rc = district_fields(a, &fields);
-    st_writer *w = writer_for(inv, L_DISTRICTS);
     if (rc == ST_OK)
-        rc = st_writer_begin_layer(w, "districts", &fields, ST_GEOM_MULTIPOLYGON);
-    if (rc == ST_OK)
-        rc = st_writer_write_rows(w, a->ndistricts, fill_district, (void *)a, inv->threads);
-    if (rc == ST_OK)
-        rc = st_writer_end_layer(w);
+        rc = write_layer(inv, L_DISTRICTS, "districts", &fields, ST_GEOM_MULTIPOLYGON,
+                         a->ndistricts, fill_district, (void *)a);
     st_fields_free(&fields);
     return rc;
 }

@@ -125,6 +125,22 @@ char *st_gpkg_uri(const char *path, const char *query)
     return st_buf_take(&b);
 }
 
+int st_gpkg_open_readonly(const char *uri, int max_length, sqlite3 **db)
+{
+    int rc = sqlite3_open_v2(uri, db, SQLITE_OPEN_READONLY | SQLITE_OPEN_URI, NULL);
+    if (rc != SQLITE_OK)
+        return rc;
+    /* A hostile file may carry triggers and views: never let its schema
+    ** call functions with side effects, never load extensions. */
+    sqlite3_db_config(*db, SQLITE_DBCONFIG_DEFENSIVE, 1, NULL);
+#ifdef SQLITE_DBCONFIG_TRUSTED_SCHEMA
+    sqlite3_db_config(*db, SQLITE_DBCONFIG_TRUSTED_SCHEMA, 0, NULL);
+#endif
+    sqlite3_db_config(*db, SQLITE_DBCONFIG_ENABLE_LOAD_EXTENSION, 0, NULL);
+    sqlite3_limit(*db, SQLITE_LIMIT_LENGTH, max_length);
+    return SQLITE_OK;
+}
+
 /* Immutable, or mode=ro when a -wal file beside it holds committed pages
 ** that immutable would not see (SQLite then manages the -shm file, which
 ** belongs to the file's own writer). */
@@ -175,18 +191,10 @@ static st_status open_db(st_reader *r, gpkg_reader *g)
     char *uri = read_uri(r->path);
     if (!uri)
         return ST_ERR_NOMEM;
-    int rc = sqlite3_open_v2(uri, &g->db, SQLITE_OPEN_READONLY | SQLITE_OPEN_URI, NULL);
+    int rc = st_gpkg_open_readonly(uri, (int)ST_GPKG_MAX_BLOB, &g->db);
     st_free(uri);
     if (rc != SQLITE_OK)
         return sql_fail(r, rc, -1, "opening the file");
-    /* A hostile file may carry triggers and views: never let its schema
-    ** call functions with side effects, never load extensions. */
-    sqlite3_db_config(g->db, SQLITE_DBCONFIG_DEFENSIVE, 1, NULL);
-#ifdef SQLITE_DBCONFIG_TRUSTED_SCHEMA
-    sqlite3_db_config(g->db, SQLITE_DBCONFIG_TRUSTED_SCHEMA, 0, NULL);
-#endif
-    sqlite3_db_config(g->db, SQLITE_DBCONFIG_ENABLE_LOAD_EXTENSION, 0, NULL);
-    sqlite3_limit(g->db, SQLITE_LIMIT_LENGTH, (int)ST_GPKG_MAX_BLOB);
     return ST_OK;
 }
 

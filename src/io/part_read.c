@@ -151,17 +151,10 @@ static st_status open_db(st_part *p)
     char *uri = st_gpkg_uri(p->path, "mode=ro");
     if (!uri)
         return ST_ERR_NOMEM;
-    int rc = sqlite3_open_v2(uri, &p->db, SQLITE_OPEN_READONLY | SQLITE_OPEN_URI, NULL);
+    int rc = st_gpkg_open_readonly(uri, (int)ST_GPKG_MAX_BLOB, &p->db);
     st_free(uri);
     if (rc != SQLITE_OK)
         return sql_fail(p, rc, "opening the part");
-    /* A hostile file may carry triggers and views: no side effects. */
-    sqlite3_db_config(p->db, SQLITE_DBCONFIG_DEFENSIVE, 1, NULL);
-#ifdef SQLITE_DBCONFIG_TRUSTED_SCHEMA
-    sqlite3_db_config(p->db, SQLITE_DBCONFIG_TRUSTED_SCHEMA, 0, NULL);
-#endif
-    sqlite3_db_config(p->db, SQLITE_DBCONFIG_ENABLE_LOAD_EXTENSION, 0, NULL);
-    sqlite3_limit(p->db, SQLITE_LIMIT_LENGTH, (int)ST_GPKG_MAX_BLOB);
     return ST_OK;
 }
 
