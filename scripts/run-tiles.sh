@@ -179,7 +179,13 @@ popts="--will-cite --halt now,fail=1 --joblog $(q "$parts/joblog") --tagstring {
 [ -n "$jobs" ] && popts="$popts --jobs $(q "$jobs")"
 [ -n "$retries" ] && popts="$popts --retries $(q "$retries")"
 [ "$resume" = 1 ] && popts="$popts --resume-failed"
-[ -n "$logins" ] && popts="$popts $logins --workdir $(q "$PWD")"
+if [ -n "$logins" ]; then
+    popts="$popts $logins --workdir $(q "$PWD")"
+    # GNU parallel runs a remote job with the shell named by PARALLEL_SHELL,
+    # else by the remote SHELL; where SHELL is unset (CI, cron, some batch
+    # systems) the job does not run at all yet reports success.
+    export PARALLEL_SHELL="${PARALLEL_SHELL:-/bin/sh}"
+fi
 [ "$quiet" = 0 ] && [ -t 2 ] && popts="$popts --bar"
 rc=0
 eval "parallel $popts -q \"\$@\" :::: $(q "$parts/tiles.txt")" || rc=$?

@@ -80,7 +80,9 @@ exec sh -c "$*"
 END
 chmod +x "$TMP/ssh"
 mkdir "$TMP/s"
-(cd "$ROOT" && PARALLEL="--ssh $TMP/ssh" STOCKTAKE=$STOCKTAKE sh "$RT" -z $Z \
+# SHELL unset, as under CI and cron: GNU parallel's remote wrapper would
+# otherwise skip every job and report success.
+(cd "$ROOT" && PARALLEL="--ssh $TMP/ssh" STOCKTAKE=$STOCKTAKE env -u SHELL sh "$RT" -z $Z \
     -S 2/host-a -S 1/host-b -o "$TMP/s/merged.gpkg" samples/buildings_osm.geojson \
     samples/buildings_cadastre.geojson -- "$@") >"$TMP/stdout" 2>"$TMP/stderr"
 rc=$?
