@@ -76,6 +76,15 @@ st_status st_rules_load_text(const char *name, const char *text, size_t len,
 
 void st_rules_free(st_rules *r);
 
+/*
+** The SHA-256 of every text the set was read from, the files given and
+** every file they include, in the order read (each text preceded by its
+** length, so moving bytes between files changes it too), as 64 lower-case
+** hex digits in 'hex' (65 bytes with the NUL). A job split into parts
+** records it so merge refuses parts whose included files changed.
+*/
+void st_rules_digest(const st_rules *r, char hex[65]);
+
 /* ---- the schema ------------------------------------------------------ */
 
 typedef enum {

@@ -217,6 +217,11 @@ st_status st_run_context_make(run_state *s, run_context *c)
         rc = hash_into(&b, "rules", o->rules[i], s->diags);
     for (size_t i = 0; rc == ST_OK && s->rules && i < st_rules_table_count(s->rules); i++)
         rc = hash_into(&b, "defaults table", st_rules_table(s->rules, i)->path, s->diags);
+    if (rc == ST_OK && s->rules) {   /* the included files too */
+        char hex[65];
+        st_rules_digest(s->rules, hex);
+        rc = st_buf_printf(&b, "; texts sha256 %s", hex);
+    }
     if (rc == ST_OK)
         rc = context_add(c, "context.rules", &b);
     if (rc == ST_OK && o->districts)

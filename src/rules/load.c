@@ -20,6 +20,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "stocktake/sha256.h"
 #include "rulesInt.h"
 
 /* ---- diagnostics ---------------------------------------------------- */
@@ -232,6 +233,28 @@ st_status st_rules_include(st_rules *R, const rspan *at, const char *path, int d
 }
 
 /* ---- the set ---------------------------------------------------------- */
+
+void st_rules_digest(const st_rules *R, char hex[65])
+{
+    static const char digits[] = "0123456789abcdef";
+    st_sha256 h;
+    st_sha256_init(&h);
+    for (uint32_t i = 0; i < R->nsources; i++) {
+        uint64_t len = R->sources[i].len;
+        uint8_t le[8];
+        for (int k = 0; k < 8; k++)
+            le[k] = (uint8_t)(len >> (8 * k));
+        st_sha256_update(&h, le, sizeof le);
+        st_sha256_update(&h, R->sources[i].text, R->sources[i].len);
+    }
+    uint8_t d[32];
+    st_sha256_final(&h, d);
+    for (int k = 0; k < 32; k++) {
+        hex[2 * k] = digits[d[k] >> 4];
+        hex[2 * k + 1] = digits[d[k] & 15];
+    }
+    hex[64] = '\0';
+}
 
 void st_rules_free(st_rules *R)
 {

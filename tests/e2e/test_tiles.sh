@@ -103,6 +103,24 @@ expect_stderr "made with other rules"
 # shellcheck disable=SC2086
 expect_rc 2 "$STOCKTAKE" merge -q $opts --seed 8 -o "$TMP/bad.gpkg" "$TMP"/parts/*.gpkg
 expect_stderr "made with other options"
+# rules whose included file changed between the parts and the merge
+mkdir -p "$TMP/inc"
+printf 'include "demo.rules"\n' >"$TMP/inc/top.rules"
+cp "$ROOT/rules/demo.rules" "$TMP/inc/demo.rules"
+iopts="-r $TMP/inc/top.rules --districts $S/districts.geojson --district-key district_id
+--region-key region_id --reference $S/reference_counts.csv --fill draw --seed 7"
+t1=$(head -n 1 "$TMP/tiles")
+# shellcheck disable=SC2086
+"$STOCKTAKE" run -q $iopts --tile "$t1" -o "$TMP/inc/part.gpkg" $ins || fail "part with an include"
+# alone the part is refused for what is missing, not for its rules ...
+# shellcheck disable=SC2086
+expect_rc 2 "$STOCKTAKE" merge -q $iopts -o "$TMP/bad.gpkg" "$TMP/inc/part.gpkg"
+expect_stderr "a window is missing"
+# ... but once the included file changes, for its rules
+printf '# an edit\n' >>"$TMP/inc/demo.rules"
+# shellcheck disable=SC2086
+expect_rc 2 "$STOCKTAKE" merge -q $iopts -o "$TMP/bad.gpkg" "$TMP/inc/part.gpkg"
+expect_stderr "made with other rules"
 expect_rc 2 "$STOCKTAKE" merge -q -o "$TMP/bad.gpkg" "$S/buildings_osm.geojson"
 expect_stderr "buildings_osm.geojson"
 # a damaged part: every feature blob cut short
