@@ -21,7 +21,9 @@
 **          exits 2 and leaves no OUT (the writer is closed without
 **          commit). OUT naming the same file as IN is refused. SIGINT,
 **          SIGTERM and SIGHUP stop the conversion the same way (no OUT, no
-**          temporary file), then end the process as the signal would.
+**          temporary file), then end the process as the signal would;
+**          one that comes once OUT is in place is too late to undo it:
+**          the conversion ends as a success.
 */
 #include <stdlib.h>
 #include <string.h>
@@ -399,6 +401,8 @@ static st_status convert(const convert_opts *o, st_diags *diags, uint64_t *writt
     if (rc == ST_OK)
         rc = write_output(o, &ropt, &s, diags, w);
     if (rc == ST_OK)
+        rc = check_interrupt(diags);   /* the last moment OUT can be held back */
+    if (rc == ST_OK)
         rc = st_writer_commit(w);
     if (rc == ST_OK) {
         print_notes(w);
@@ -429,7 +433,8 @@ int st_cmd_convert(int argc, char **argv)
     st_cli_catch_interrupts();
     st_status rc = convert(&o, &diags, &written);
     st_cli_print_diags(&diags);
-    st_cli_reraise();
+    if (rc != ST_OK)
+        st_cli_reraise();   /* a signal after OUT is in place undoes nothing */
     if (rc != ST_OK && !diags.errors)
         fprintf(stderr, "stocktake convert: %s: %s\n", o.out,
                 rc == ST_ERR_NOMEM ? "out of memory" : st_status_name(rc));

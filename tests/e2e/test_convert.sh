@@ -104,10 +104,12 @@ grep -q "usage: stocktake convert" "$TMP/stdout" || fail "--help"
 [ "$(sha "$T")" = "$before" ] || fail "the input was modified"
 
 # ---- SIGTERM during a long conversion: no output, no temporary file --------------------
+# About 3 s of work on the 2-core machine, so the signal after 1 s lands
+# in the middle; a signal after OUT is in place leaves it whole (exit 0).
 $PY - "$TMP/big.geojsonl" <<'EOF'
 import sys
 with open(sys.argv[1], "w") as fp:
-    for i in range(400000):
+    for i in range(1200000):
         x, y = 3.2 + (i % 1000) * 1e-4, 51.1 + (i // 1000) * 1e-4
         fp.write('{"type":"Feature","properties":{"n":%d},"geometry":{"type":"Point","coordinates":[%.7f,%.7f]}}\n' % (i, x, y))
 EOF
@@ -118,11 +120,14 @@ sleep 1
 kill -TERM "$pid" 2>/dev/null
 wait "$pid"
 rc=$?
-# If the machine finished the job within the second, there is nothing to check.
 if [ $rc -ne 0 ]; then
     [ $rc -eq 143 ] || fail "after SIGTERM convert exited $rc, expected 143 (128 + SIGTERM)"
     expect_stderr "interrupted"
     no_output_left
+else
+    # the signal came too late (a fast machine): OUT is whole
+    [ "$(ls -A "$OUT")" = big.csv ] || fail "after a late SIGTERM: $(ls -A "$OUT")"
+    [ "$(wc -l <"$OUT/big.csv")" -eq 1200001 ] || fail "after a late SIGTERM OUT is not whole"
 fi
 
 # ---- shapefile input in UTM: --crs, unknown CRS, writer notes ------------------------
