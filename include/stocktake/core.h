@@ -39,7 +39,8 @@ typedef enum {
     ST_ERR_GEOS,    /* GEOS raised an exception */
     ST_ERR_PROJ,    /* PROJ could not build or apply a transformation */
     ST_ERR_LIMIT,   /* an input exceeds a documented limit */
-    ST_ERR_USAGE    /* a caller passed a bad option or argument */
+    ST_ERR_USAGE,   /* a caller passed a bad option or argument */
+    ST_ERR_STOPPED  /* the caller asked the work to stop (an interrupt) */
 } st_status;
 
 /* Short lowercase name of a status ("nomem", "io", ...). Never NULL. */

@@ -9,6 +9,7 @@
 #ifndef STOCKTAKE_PIPELINE_H
 #define STOCKTAKE_PIPELINE_H
 
+#include <signal.h>
 #include <stdint.h>
 #include "stocktake/core.h"
 #include "stocktake/audit.h"
@@ -41,6 +42,12 @@ typedef struct st_run_options {
     /* Progress: called now and then from the calling thread; may be NULL. */
     void (*progress)(void *ud, const char *stage, long long done, long long total);
     void *progress_ud;
+    /* Stop request, or NULL: once the caller sets *stop to nonzero (a
+    ** signal handler, say), the run stops at the next stage, chunk of
+    ** reading or output, with ST_ERR_STOPPED and nothing written (no
+    ** output, no report, no temporary file). Once the outputs are in
+    ** place a request changes nothing. */
+    const volatile sig_atomic_t *stop;
     /* Memory limit in bytes (0: st_run_default_max_memory()). The run
     ** estimates its need from the input sizes before reading and from
     ** each feature while reading, and stops with ST_ERR_LIMIT before it

@@ -7,6 +7,7 @@
 #ifndef STOCKTAKE_CLI_H
 #define STOCKTAKE_CLI_H
 
+#include <signal.h>
 #include <stdint.h>
 #include <stdio.h>
 #include "stocktake/core.h"
@@ -64,6 +65,8 @@ void st_progress_end(st_progress *p);
 */
 void st_cli_catch_interrupts(void);
 int st_cli_interrupted(void);          /* the signal number, or 0 */
+/* The flag itself, for a library loop that polls it (st_run_options.stop). */
+const volatile sig_atomic_t *st_cli_interrupt_flag(void);
 void st_cli_reraise(void);             /* no-op without a signal */
 
 /* Parse a size such as "512M", "8G", "1.5GiB" or "1000000" (bytes; K, M,

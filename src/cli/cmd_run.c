@@ -343,10 +343,15 @@ static int run_or_merge(const char *cmdname, int argc, char **argv)
     st_diags_init(&d);
     st_run_result *res = NULL;
     int merge = !strcmp(cmdname, "merge");
+    st_cli_catch_interrupts();
+    a.opt.stop = st_cli_interrupt_flag();
     st_status st = merge ? st_run_merge(&a.opt, &d, &res) : st_run_execute(&a.opt, &d, &res);
     st_progress_end(&p);
     st_cli_print_diags(&d);
-    if (st != ST_OK) {
+    if (st == ST_ERR_STOPPED) {   /* the diagnostic said so */
+        st_cli_reraise();   /* ends the process as the signal would have */
+        rc = ST_EXIT_ERROR;
+    } else if (st != ST_OK) {
         fprintf(stderr, "stocktake %s: stopped (%s); nothing was written\n", cmdname,
                 st_status_name(st));
         rc = ST_EXIT_ERROR;

@@ -55,6 +55,11 @@ void st_cli_catch_interrupts(void)
     }
 }
 
+const volatile sig_atomic_t *st_cli_interrupt_flag(void)
+{
+    return &caught_signal;
+}
+
 int st_cli_interrupted(void)
 {
     return caught_signal;

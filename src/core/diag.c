@@ -24,6 +24,7 @@ const char *st_status_name(st_status s)
     case ST_ERR_PROJ: return "proj";
     case ST_ERR_LIMIT: return "limit";
     case ST_ERR_USAGE: return "usage";
+    case ST_ERR_STOPPED: return "stopped";
     }
     return "unknown";
 }

@@ -107,7 +107,7 @@ st_status st_run_load_places(run_state *s)
 static st_status timed(run_state *s, st_status rc, const char *stage,
                        st_status (*fn)(run_state *))
 {
-    if (rc != ST_OK)
+    if (rc != ST_OK || (rc = st_run_check_stop(s)) != ST_OK)
         return rc;
     clock_pair t0 = clock_now();
     rc = fn(s);

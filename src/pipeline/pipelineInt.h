@@ -74,6 +74,9 @@ typedef struct run_chunk {
 /* ---- shared by the stages (run_chunks.c) ---------------------------------- */
 
 void st_run_progress(run_state *s, const char *stage, long long done, long long total);
+/* ST_ERR_STOPPED (with one diagnostic) once the caller asked the run to
+** stop (st_run_options.stop), else ST_OK. */
+st_status st_run_check_stop(run_state *s) ST_MUST_CHECK;
 /* Owned array of chunks (*n of them), or NULL on no memory. */
 run_chunk *st_run_chunks_make(run_state *s, size_t *n);
 /* n empty finding lists, one per chunk, or NULL. */

@@ -13,6 +13,14 @@ void st_run_progress(run_state *s, const char *stage, long long done, long long 
     if (s->opt->progress)
         s->opt->progress(s->opt->progress_ud, stage, done, total);
 }
+
+st_status st_run_check_stop(run_state *s)
+{
+    if (!s->opt->stop || !*s->opt->stop)
+        return ST_OK;
+    return st_diags_add(s->diags, ST_SEV_ERROR, ST_ERR_STOPPED, NULL,
+                        "interrupted; nothing was written");
+}
 run_chunk *st_run_chunks_make(run_state *s, size_t *n)
 {
     size_t cap = s->nfeatures / ST_POOL_CHUNK + s->res->nlayers + 1;

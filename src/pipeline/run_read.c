@@ -206,6 +206,8 @@ static st_status read_layer(run_state *s, size_t l)
             break;
         L->read++;
         if ((L->read & 0x3FFF) == 0) {
+            if ((rc = st_run_check_stop(s)) != ST_OK)
+                break;
             long long done, total;
             st_reader_progress(r, &done, &total);
             st_run_progress(s, "read", done, total);

@@ -328,6 +328,8 @@ st_status st_stage_write_part(run_state *s)
     if (rc == ST_OK)
         rc = write_unmapped(s, w);
     if (rc == ST_OK)
+        rc = st_run_check_stop(s);   /* the last moment to leave nothing */
+    if (rc == ST_OK)
         rc = st_part_writer_commit(w);
     st_part_writer_close(w);
     st_run_context_free(&c);

@@ -345,6 +345,8 @@ st_status st_stage_write(run_state *s)
     if (rc == ST_OK && s->opt->report_dir)
         rc = prepare_report(s, &rep);
     if (rc == ST_OK)
+        rc = st_run_check_stop(s);   /* the last moment to leave nothing */
+    if (rc == ST_OK)
         rc = st_inventory_commit(inv);
     if (rc == ST_OK && rep)
         rc = st_report_commit(rep, s->diags);
