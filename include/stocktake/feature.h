@@ -45,13 +45,17 @@ typedef struct st_geom {
     uint8_t has_z;         /* the source had Z (dropped: footprints are 2-D) */
     uint8_t has_m;         /* the source had M (dropped) */
     uint32_t nparts, nrings, ncoords;
+    uint32_t cap_parts, cap_rings, cap_coords;  /* builder capacities */
     uint32_t *part_ring;   /* nparts + 1 entries, owned */
     uint32_t *ring_coord;  /* nrings + 1 entries, owned */
     double *xy;            /* 2 * ncoords, owned */
-    uint32_t cap_parts, cap_rings, cap_coords;  /* builder capacities */
-} st_geom;
+} st_geom;                 /* 56 bytes: counts before pointers, no padding */
 
 void st_geom_init(st_geom *g);        /* ST_GEOM_NULL, no memory */
+/* Returns owned ST_GEOM_NULL geometry (NULL on no memory); free with
+** st_geom_free, which frees its arrays too (NULL: no-op). */
+st_geom *st_geom_new(void);
+void st_geom_free(st_geom *g);
 void st_geom_clear(st_geom *g);       /* frees arrays, back to NULL type */
 void st_geom_reset(st_geom *g);       /* no coordinates, NULL type; keeps arrays */
 int st_geom_is_empty(const st_geom *g);
@@ -131,25 +135,30 @@ typedef enum {
 
 const char *st_feature_status_name(st_feature_status s);
 
+/* A million of these are held at once (docs/performance.md, memory per
+** footprint): the members are ordered so that the record has no padding
+** (168 bytes, one 176-byte heap block). */
 typedef struct st_feature {
     uint32_t layer;        /* index of the input layer in the run */
+    uint32_t nvalues;      /* number of entries in 'values' */
     uint64_t index;        /* 0-based position within its layer as read */
     char *source_id;       /* the layer's own id (GeoJSON id, gpkg fid,
                               shapefile record number), owned, or NULL */
     st_geom geom;          /* lon/lat WGS 84 once the reader returns it */
-    st_geom source_geom;   /* the geometry as read, kept only when a stage
-                              replaced 'geom' (footprint repair); type
-                              ST_GEOM_NULL otherwise. Owned. */
+    st_geom *source_geom;  /* the geometry as read, kept only when a stage
+                              replaced 'geom' (footprint repair); NULL
+                              otherwise. Owned: a pointer rather than a
+                              second st_geom in the record, since few
+                              features need it. */
     char **values;         /* nvalues source attributes, owned, NULL = missing;
                               values[i] belongs to field i of its layer */
-    uint32_t nvalues;
     uint32_t values_packed;/* 0, or: the strings live in the block of
                               'values' itself (st_feature_pack_values) and
                               are not freed one by one */
 
     /* Filled by later stages. */
-    uint64_t bid;          /* stable building id */
     st_feature_status status;
+    uint64_t bid;          /* stable building id */
     char *reason;          /* owned; why set aside, or NULL */
     uint64_t duplicate_of; /* bid of the kept member, for ST_STATUS_DUPLICATE */
     double area_m2, perimeter_m;

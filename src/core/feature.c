@@ -38,6 +38,19 @@ void st_geom_reset(st_geom *g)
     g->nparts = g->nrings = g->ncoords = 0;
 }
 
+st_geom *st_geom_new(void)
+{
+    return st_calloc(1, sizeof(st_geom));
+}
+
+void st_geom_free(st_geom *g)
+{
+    if (!g)
+        return;
+    st_geom_clear(g);
+    st_free(g);
+}
+
 int st_geom_is_empty(const st_geom *g)
 {
     return g->type == ST_GEOM_NULL || g->ncoords == 0;
@@ -308,7 +321,7 @@ void st_feature_free(st_feature *f)
         return;
     st_free(f->source_id);
     st_geom_clear(&f->geom);
-    st_geom_clear(&f->source_geom);
+    st_geom_free(f->source_geom);
     for (uint32_t i = 0; !f->values_packed && i < f->nvalues; i++)
         st_free(f->values[i]);
     st_free(f->values);
