@@ -121,10 +121,25 @@ typedef enum {
 const char *st_provenance_name(st_provenance p);  /* "source", ... */
 
 typedef struct st_field_value {
-    char *text;            /* owned UTF-8, NULL while unknown */
+    char *text;            /* UTF-8, NULL while unknown; owned unless
+                              'borrowed' */
     st_provenance from;
+    uint32_t borrowed;     /* 1: 'text' is a string of the rule set or of
+                              the defaults (a code, an unknown value, a
+                              default), which outlive the feature's use of
+                              it, as 'rule' does: not freed with the value.
+                              Most values are such codes; a copy of each
+                              would cost a heap block a value
+                              (docs/performance.md, memory per footprint). */
     const char *rule;      /* "file:line" owned by the rule set, or NULL */
 } st_field_value;
+
+/* v's text becomes 'text' (borrowed: it must outlive v's use of it, and is
+** never freed through v), after v's own text, if any, is freed. */
+void st_field_value_borrow(st_field_value *v, const char *text);
+/* v's text becomes 'text' (takes ownership; NULL: none), after v's own
+** text, if any, is freed. */
+void st_field_value_take(st_field_value *v, char *text);
 
 typedef enum {
     ST_STATUS_OK = 0,      /* kept as read */

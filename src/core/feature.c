@@ -307,6 +307,26 @@ const char *st_feature_status_name(st_feature_status s)
     return "ok";
 }
 
+static void field_value_free_text(st_field_value *v)
+{
+    if (!v->borrowed)
+        st_free(v->text);
+}
+
+void st_field_value_borrow(st_field_value *v, const char *text)
+{
+    field_value_free_text(v);
+    v->text = (char *)text;   /* never written nor freed: 'borrowed' */
+    v->borrowed = 1;
+}
+
+void st_field_value_take(st_field_value *v, char *text)
+{
+    field_value_free_text(v);
+    v->text = text;
+    v->borrowed = 0;
+}
+
 st_feature *st_feature_new(void)
 {
     st_feature *f = st_calloc(1, sizeof *f);
@@ -327,7 +347,7 @@ void st_feature_free(st_feature *f)
     st_free(f->values);
     st_free(f->reason);
     for (uint32_t i = 0; i < f->nschema; i++)
-        st_free(f->schema[i].text);
+        field_value_free_text(&f->schema[i]);
     st_free(f->schema);
     st_free(f);
 }
