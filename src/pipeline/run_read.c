@@ -1,8 +1,9 @@
 /*
 ** pipeline/run_read.c -- the read stage: every input layer in turn, each
 ** feature given its layer, its bid (its position in read order over all
-** layers, from 1) and a source id, made compact (coordinates trimmed,
-** attributes packed) and counted against the memory budget.
+** layers, from 1) and a source id, made compact (geometry and attributes
+** each packed into one block, trimmed to size) and counted against the
+** memory budget.
 ** Whatever needs the whole layer is gathered from every feature as it
 ** passes (field types, the robust extent), so a tile (run --tile), which
 ** keeps only the features within reach of its window, learns the same.
