@@ -98,7 +98,8 @@ st_status st_defaults_learn(st_defaults *d, st_feature *const *fs, size_t n) ST_
 ** Fill the unknown fields of f (a kept building after map/derive; its
 ** f->district indexes 'places'). 'ctx' evaluates inline conditions
 ** (borrowed, of the same rule set). Values set keep the rule's "file:line"
-** (owned by 'rules' or by 'd': d must outlive the features' use of them).
+** and borrow their text (owned by 'rules' or by 'd': d must outlive the
+** features' use of them).
 */
 st_status st_defaults_apply(st_defaults *d, st_rules_ctx *ctx, st_feature *f,
                             st_fill_mode mode, uint64_t seed) ST_MUST_CHECK;

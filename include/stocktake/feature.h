@@ -44,14 +44,20 @@ typedef struct st_geom {
     st_geom_type type;
     uint8_t has_z;         /* the source had Z (dropped: footprints are 2-D) */
     uint8_t has_m;         /* the source had M (dropped) */
+    uint8_t packed;        /* 1: the three arrays share the block of 'xy'
+                              (st_geom_pack); freed with it */
     uint32_t nparts, nrings, ncoords;
+    uint32_t cap_parts, cap_rings, cap_coords;  /* builder capacities */
     uint32_t *part_ring;   /* nparts + 1 entries, owned */
     uint32_t *ring_coord;  /* nrings + 1 entries, owned */
     double *xy;            /* 2 * ncoords, owned */
-    uint32_t cap_parts, cap_rings, cap_coords;  /* builder capacities */
-} st_geom;
+} st_geom;                 /* 56 bytes: counts before pointers, no padding */
 
 void st_geom_init(st_geom *g);        /* ST_GEOM_NULL, no memory */
+/* Returns owned ST_GEOM_NULL geometry (NULL on no memory); free with
+** st_geom_free, which frees its arrays too (NULL: no-op). */
+st_geom *st_geom_new(void);
+void st_geom_free(st_geom *g);
 void st_geom_clear(st_geom *g);       /* frees arrays, back to NULL type */
 void st_geom_reset(st_geom *g);       /* no coordinates, NULL type; keeps arrays */
 int st_geom_is_empty(const st_geom *g);
@@ -59,6 +65,15 @@ int st_geom_is_empty(const st_geom *g);
 st_status st_geom_begin_part(st_geom *g) ST_MUST_CHECK;
 st_status st_geom_begin_ring(st_geom *g) ST_MUST_CHECK;
 st_status st_geom_add_xy(st_geom *g, double x, double y) ST_MUST_CHECK;
+/*
+** Move the arrays into one block trimmed to size (the coordinates, then the
+** part and ring offsets): one heap block instead of three, for geometries
+** held by the million (docs/performance.md). Reads the same; the builder
+** functions above unpack a packed geometry before they add to it. Nothing
+** to do for a geometry without coordinates. On ST_ERR_NOMEM nothing
+** changes.
+*/
+st_status st_geom_pack(st_geom *g) ST_MUST_CHECK;
 /* Deep copy into 'dst' (which is cleared first). */
 st_status st_geom_copy(st_geom *dst, const st_geom *src) ST_MUST_CHECK;
 /* Bounding box of all coordinates; returns 0 when there are none. */
@@ -117,10 +132,25 @@ typedef enum {
 const char *st_provenance_name(st_provenance p);  /* "source", ... */
 
 typedef struct st_field_value {
-    char *text;            /* owned UTF-8, NULL while unknown */
+    char *text;            /* UTF-8, NULL while unknown; owned unless
+                              'borrowed' */
     st_provenance from;
+    uint32_t borrowed;     /* 1: 'text' is a string of the rule set or of
+                              the defaults (a code, an unknown value, a
+                              default), which outlive the feature's use of
+                              it, as 'rule' does: not freed with the value.
+                              Most values are such codes; a copy of each
+                              would cost a heap block a value
+                              (docs/performance.md, memory per footprint). */
     const char *rule;      /* "file:line" owned by the rule set, or NULL */
 } st_field_value;
+
+/* v's text becomes 'text' (borrowed: it must outlive v's use of it, and is
+** never freed through v), after v's own text, if any, is freed. */
+void st_field_value_borrow(st_field_value *v, const char *text);
+/* v's text becomes 'text' (takes ownership; NULL: none), after v's own
+** text, if any, is freed. */
+void st_field_value_take(st_field_value *v, char *text);
 
 typedef enum {
     ST_STATUS_OK = 0,      /* kept as read */
@@ -131,25 +161,30 @@ typedef enum {
 
 const char *st_feature_status_name(st_feature_status s);
 
+/* A million of these are held at once (docs/performance.md, memory per
+** footprint): the members are ordered so that the record has no padding
+** (168 bytes, one 176-byte heap block). */
 typedef struct st_feature {
     uint32_t layer;        /* index of the input layer in the run */
+    uint32_t nvalues;      /* number of entries in 'values' */
     uint64_t index;        /* 0-based position within its layer as read */
     char *source_id;       /* the layer's own id (GeoJSON id, gpkg fid,
                               shapefile record number), owned, or NULL */
     st_geom geom;          /* lon/lat WGS 84 once the reader returns it */
-    st_geom source_geom;   /* the geometry as read, kept only when a stage
-                              replaced 'geom' (footprint repair); type
-                              ST_GEOM_NULL otherwise. Owned. */
+    st_geom *source_geom;  /* the geometry as read, kept only when a stage
+                              replaced 'geom' (footprint repair); NULL
+                              otherwise. Owned: a pointer rather than a
+                              second st_geom in the record, since few
+                              features need it. */
     char **values;         /* nvalues source attributes, owned, NULL = missing;
                               values[i] belongs to field i of its layer */
-    uint32_t nvalues;
     uint32_t values_packed;/* 0, or: the strings live in the block of
                               'values' itself (st_feature_pack_values) and
                               are not freed one by one */
 
     /* Filled by later stages. */
-    uint64_t bid;          /* stable building id */
     st_feature_status status;
+    uint64_t bid;          /* stable building id */
     char *reason;          /* owned; why set aside, or NULL */
     uint64_t duplicate_of; /* bid of the kept member, for ST_STATUS_DUPLICATE */
     double area_m2, perimeter_m;

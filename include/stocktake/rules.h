@@ -236,7 +236,10 @@ void st_rules_ctx_free(st_rules_ctx *c);
 ** geometry stage must have set f->area_m2 and f->perimeter_m.
 ** Fills f->schema/f->nschema (one value per schema field, replacing what
 ** was there) with value, provenance and rule; fields nothing applied to get
-** the schema's unknown value with provenance unknown. Check rules and
+** the schema's unknown value with provenance unknown. Values that are
+** strings of the rule set (codes, the mixed and unknown values) borrow
+** them (st_field_value.borrowed): R must outlive the features' use of
+** them, as it does for the rule's "file:line". Check rules and
 ** refused values add findings to 'out'. Unmapped source values are counted
 ** in the context's counter. The context caches how the layer's field names
 ** resolve, keyed on the st_fields object and its count: call

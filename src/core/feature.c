@@ -25,8 +25,10 @@ void st_geom_init(st_geom *g)
 
 void st_geom_clear(st_geom *g)
 {
-    st_free(g->part_ring);
-    st_free(g->ring_coord);
+    if (!g->packed) {
+        st_free(g->part_ring);
+        st_free(g->ring_coord);
+    }
     st_free(g->xy);
     st_geom_init(g);
 }
@@ -36,6 +38,19 @@ void st_geom_reset(st_geom *g)
     g->type = ST_GEOM_NULL;
     g->has_z = g->has_m = 0;
     g->nparts = g->nrings = g->ncoords = 0;
+}
+
+st_geom *st_geom_new(void)
+{
+    return st_calloc(1, sizeof(st_geom));
+}
+
+void st_geom_free(st_geom *g)
+{
+    if (!g)
+        return;
+    st_geom_clear(g);
+    st_free(g);
 }
 
 int st_geom_is_empty(const st_geom *g)
@@ -63,8 +78,53 @@ static st_status grow(void **arr, uint32_t *cap, uint64_t need, size_t size)
     return ST_OK;
 }
 
+st_status st_geom_pack(st_geom *g)
+{
+    if (g->packed || g->nparts == 0 || g->nrings == 0 || g->ncoords == 0)
+        return ST_OK;
+    size_t nxy = 2 * (size_t)g->ncoords * sizeof *g->xy;
+    size_t nparts = ((size_t)g->nparts + 1) * sizeof *g->part_ring;
+    size_t nrings = ((size_t)g->nrings + 1) * sizeof *g->ring_coord;
+    unsigned char *block = st_malloc(nxy + nparts + nrings);
+    if (!block)
+        return ST_ERR_NOMEM;
+    memcpy(block, g->xy, nxy);
+    memcpy(block + nxy, g->part_ring, nparts);
+    memcpy(block + nxy + nparts, g->ring_coord, nrings);
+    st_free(g->xy);
+    st_free(g->part_ring);
+    st_free(g->ring_coord);
+    g->xy = (double *)(void *)block;
+    g->part_ring = (uint32_t *)(void *)(block + nxy);
+    g->ring_coord = (uint32_t *)(void *)(block + nxy + nparts);
+    g->cap_coords = g->ncoords;
+    g->cap_parts = g->nparts + 1;
+    g->cap_rings = g->nrings + 1;
+    g->packed = 1;
+    return ST_OK;
+}
+
+/* Give a packed geometry its three arrays back, before the builder grows
+** them. */
+static st_status unpack(st_geom *g)
+{
+    st_geom copy;
+    st_geom_init(&copy);
+    st_status rc = st_geom_copy(&copy, g);
+    if (rc != ST_OK)
+        return rc;
+    st_geom_clear(g);
+    *g = copy;
+    return ST_OK;
+}
+
 st_status st_geom_begin_part(st_geom *g)
 {
+    if (g->packed) {
+        st_status rc = unpack(g);
+        if (rc != ST_OK)
+            return rc;
+    }
     /* part_ring has nparts + 1 entries; keep the sentinel current. */
     st_status rc = grow((void **)&g->part_ring, &g->cap_parts,
                         (uint64_t)g->nparts + 2, sizeof *g->part_ring);
@@ -79,6 +139,11 @@ st_status st_geom_begin_part(st_geom *g)
 
 st_status st_geom_begin_ring(st_geom *g)
 {
+    if (g->packed) {
+        st_status rc = unpack(g);
+        if (rc != ST_OK)
+            return rc;
+    }
     if (g->nparts == 0) {
         st_status rc = st_geom_begin_part(g);
         if (rc != ST_OK)
@@ -98,6 +163,11 @@ st_status st_geom_begin_ring(st_geom *g)
 
 st_status st_geom_add_xy(st_geom *g, double x, double y)
 {
+    if (g->packed) {
+        st_status rc = unpack(g);
+        if (rc != ST_OK)
+            return rc;
+    }
     if (g->nrings == 0) {
         st_status rc = st_geom_begin_ring(g);
         if (rc != ST_OK)
@@ -294,6 +364,26 @@ const char *st_feature_status_name(st_feature_status s)
     return "ok";
 }
 
+static void field_value_free_text(st_field_value *v)
+{
+    if (!v->borrowed)
+        st_free(v->text);
+}
+
+void st_field_value_borrow(st_field_value *v, const char *text)
+{
+    field_value_free_text(v);
+    v->text = (char *)text;   /* never written nor freed: 'borrowed' */
+    v->borrowed = 1;
+}
+
+void st_field_value_take(st_field_value *v, char *text)
+{
+    field_value_free_text(v);
+    v->text = text;
+    v->borrowed = 0;
+}
+
 st_feature *st_feature_new(void)
 {
     st_feature *f = st_calloc(1, sizeof *f);
@@ -308,13 +398,13 @@ void st_feature_free(st_feature *f)
         return;
     st_free(f->source_id);
     st_geom_clear(&f->geom);
-    st_geom_clear(&f->source_geom);
+    st_geom_free(f->source_geom);
     for (uint32_t i = 0; !f->values_packed && i < f->nvalues; i++)
         st_free(f->values[i]);
     st_free(f->values);
     st_free(f->reason);
     for (uint32_t i = 0; i < f->nschema; i++)
-        st_free(f->schema[i].text);
+        field_value_free_text(&f->schema[i]);
     st_free(f->schema);
     st_free(f);
 }

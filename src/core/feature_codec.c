@@ -109,6 +109,14 @@ static int geom_ok(const st_geom *g)
     return g->ncoords == 0 || g->xy;
 }
 
+/* The geometry as read, or an empty NULL-typed one when f has none: the
+** record always holds two geometries. */
+static const st_geom *source_of(const st_feature *f)
+{
+    static const st_geom none = {.type = ST_GEOM_NULL};
+    return f->source_geom ? f->source_geom : &none;
+}
+
 static uint64_t geom_size(const st_geom *g)
 {
     uint64_t n = 3 + 12 + 16 * (uint64_t)g->ncoords;
@@ -139,7 +147,7 @@ static unsigned char *put_geom(unsigned char *p, const st_geom *g)
 /* The record's size; 0 when a string is too long to encode. */
 static uint64_t record_size(const st_feature *f)
 {
-    uint64_t n = 1 + 4 + 8 + geom_size(&f->geom) + geom_size(&f->source_geom) + 4 +
+    uint64_t n = 1 + 4 + 8 + geom_size(&f->geom) + geom_size(source_of(f)) + 4 +
                  8 + 1 + 8 + 8 + 8 + 4 + 4 + 4;
     int ok = add_str(&n, f->source_id) && add_str(&n, f->reason);
     for (uint32_t i = 0; ok && i < f->nvalues; i++)
@@ -152,7 +160,7 @@ static uint64_t record_size(const st_feature *f)
 /* 1 when f can be encoded and decoded back unchanged. */
 static int feature_ok(const st_feature *f)
 {
-    if (!geom_ok(&f->geom) || !geom_ok(&f->source_geom) ||
+    if (!geom_ok(&f->geom) || !geom_ok(source_of(f)) ||
         (unsigned)f->status > ST_STATUS_REJECTED || f->district < -1 ||
         (f->nvalues && !f->values) || (f->nschema && !f->schema))
         return 0;
@@ -198,7 +206,7 @@ st_status st_feature_encode(const st_feature *f, st_buf *out)
     p = put_u64(p, f->index);
     p = put_str(p, f->source_id);
     p = put_geom(p, &f->geom);
-    p = put_geom(p, &f->source_geom);
+    p = put_geom(p, source_of(f));
     p = put_u32(p, f->nvalues);
     for (uint32_t i = 0; i < f->nvalues; i++)
         p = put_str(p, f->values[i]);
@@ -447,6 +455,26 @@ static st_status intern_rules(cursor c, st_feature *f, st_strtab *strings)
     return ST_OK;
 }
 
+/* The geometry as read into f->source_geom; an empty NULL-typed one (what
+** source_of writes for none) reads as none, anything else is kept so that
+** the record encodes back to the same bytes. */
+static st_status get_source_geom(cursor *c, st_feature *f)
+{
+    st_geom g;
+    st_geom_init(&g);
+    st_status rc = get_geom(c, &g);
+    if (rc != ST_OK || (g.type == ST_GEOM_NULL && !g.has_z && !g.has_m && !g.nparts)) {
+        st_geom_clear(&g);
+        return rc;
+    }
+    if (!(f->source_geom = st_geom_new())) {
+        st_geom_clear(&g);
+        return ST_ERR_NOMEM;
+    }
+    *f->source_geom = g;
+    return ST_OK;
+}
+
 st_status st_feature_decode(const void *data, size_t n, st_strtab *strings,
                             st_feature **out)
 {
@@ -463,7 +491,7 @@ st_status st_feature_decode(const void *data, size_t n, st_strtab *strings,
         goto done;
     if ((rc = take_str(&c, &f->source_id)) != ST_OK ||
         (rc = get_geom(&c, &f->geom)) != ST_OK ||
-        (rc = get_geom(&c, &f->source_geom)) != ST_OK ||
+        (rc = get_source_geom(&c, f)) != ST_OK ||
         (rc = get_values(&c, f)) != ST_OK)
         goto done;
     rc = ST_ERR_FORMAT;

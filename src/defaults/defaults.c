@@ -552,7 +552,7 @@ static int entry_holds(const dentry *e, st_rules_ctx *ctx, const st_feature *f)
     return 1;
 }
 
-static st_status set_value(const dentry *e, st_feature *f, st_fill_mode mode, uint64_t seed)
+static void set_value(const dentry *e, st_feature *f, st_fill_mode mode, uint64_t seed)
 {
     uint32_t pick = e->best;
     st_provenance from = ST_PROV_DEFAULT;
@@ -570,14 +570,9 @@ static st_status set_value(const dentry *e, st_feature *f, st_fill_mode mode, ui
         from = ST_PROV_DRAWN;
     }
     st_field_value *v = &f->schema[e->field];
-    char *text = st_strdup(e->choices[pick].value);
-    if (!text)
-        return ST_ERR_NOMEM;
-    st_free(v->text);
-    v->text = text;
+    st_field_value_borrow(v, e->choices[pick].value);   /* d outlives f's use */
     v->from = from;
     v->rule = e->rule;
-    return ST_OK;
 }
 
 /* The first entry among idx[lo, hi) for 'field' whose condition holds. */
@@ -622,7 +617,7 @@ st_status st_defaults_apply(st_defaults *d, st_rules_ctx *ctx, st_feature *f,
             continue;
         const dentry *e = choose(d, ctx, f, field);
         if (e)
-            rc = set_value(e, f, mode, seed);
+            set_value(e, f, mode, seed);
     }
     return rc;
 }

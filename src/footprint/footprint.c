@@ -63,7 +63,7 @@ void st_footprint_checker_set_extent(st_footprint_checker *ck, const st_footprin
 
 const st_geom *st_footprint_source_geom(const st_feature *f)
 {
-    return f->source_geom.type != ST_GEOM_NULL ? &f->source_geom : &f->geom;
+    return f->source_geom ? f->source_geom : &f->geom;
 }
 
 /* ---- one feature's run ---------------------------------------------------- */
@@ -247,10 +247,11 @@ int st_footprint_swap_suspect(const st_footprint_extent *ext, const st_feature *
 
 void st_footprint_reset(st_feature *f)
 {
-    if (f->source_geom.type != ST_GEOM_NULL) {
+    if (f->source_geom) {
         st_geom_clear(&f->geom);
-        f->geom = f->source_geom;
-        st_geom_init(&f->source_geom);
+        f->geom = *f->source_geom;
+        st_free(f->source_geom);   /* the arrays moved back into f->geom */
+        f->source_geom = NULL;
     }
     st_free(f->reason);
     f->reason = NULL;
@@ -627,8 +628,14 @@ static st_status commit(fp_run *r, st_feature *f, st_findings *out)
     char *reason = NULL;
     if (rejected(r) && !(reason = st_strdup(r->reason)))
         return ST_ERR_NOMEM;
-    st_status rc = st_findings_move(out, &r->ck->scratch);
+    /* the holder of the geometry as read, made before anything changes */
+    int keep_source = r->changed && !rejected(r) && !f->source_geom;
+    st_geom *source = keep_source ? st_geom_new() : NULL;
+    st_status rc = keep_source && !source ? ST_ERR_NOMEM : ST_OK;
+    if (rc == ST_OK)
+        rc = st_findings_move(out, &r->ck->scratch);
     if (rc != ST_OK) {
+        st_free(source);
         st_free(reason);
         return rc;
     }
@@ -638,14 +645,16 @@ static st_status commit(fp_run *r, st_feature *f, st_findings *out)
     f->area_m2 = r->area;
     f->perimeter_m = r->perimeter;
     if (r->changed && !rejected(r)) {
-        if (f->source_geom.type == ST_GEOM_NULL)
-            f->source_geom = f->geom;      /* keep the geometry as read */
-        else
+        if (source) {
+            *source = f->geom;             /* keep the geometry as read */
+            f->source_geom = source;
+        } else {
             st_geom_clear(&f->geom);       /* checked before: source kept */
+        }
         f->geom = r->work;
         st_geom_init(&r->work);
     }
-    if (f->source_geom.type != ST_GEOM_NULL)
+    if (f->source_geom)
         r->flags |= ST_FLAG_REPLACED;
     f->flags = r->flags;
     return ST_OK;

@@ -259,8 +259,8 @@ static void row_feature(st_feature *r, const st_feature *f, int promote)
 {
     r->geom = f->geom;
     /* set_aside keeps the geometry as read, also when a stage replaced it */
-    if (!promote && f->source_geom.type != ST_GEOM_NULL)
-        r->geom = f->source_geom;
+    if (!promote && f->source_geom && f->source_geom->type != ST_GEOM_NULL)
+        r->geom = *f->source_geom;
     /* buildings is declared MULTIPOLYGON: a polygon is written as a
     ** one-part multipolygon (same arrays, another type tag). */
     if (promote && r->geom.type == ST_GEOM_POLYGON)

@@ -13,8 +13,9 @@
 **         the neighbour stage needs all layers together; pipeline/guard.c
 **         keeps that under the run's memory limit and refuses an output
 **         that would overwrite an input, before anything is read. Each
-**         feature is made compact after reading (coordinates trimmed,
-**         attributes packed: docs/performance.md, memory per footprint).
+**         feature is made compact after reading (geometry and attributes
+**         each packed into one block; schema values borrow the rule set's
+**         codes: docs/performance.md, memory per footprint).
 ** Threads: the per-feature stages (footprint checks, neighbour scans,
 **         rules, defaults) run on a pool of opt->threads workers (pool.c) over fixed
 **         chunks of ST_POOL_CHUNK features; each chunk's findings, pairs and

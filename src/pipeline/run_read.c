@@ -1,8 +1,9 @@
 /*
 ** pipeline/run_read.c -- the read stage: every input layer in turn, each
 ** feature given its layer, its bid (its position in read order over all
-** layers, from 1) and a source id, made compact (coordinates trimmed,
-** attributes packed) and counted against the memory budget.
+** layers, from 1) and a source id, made compact (geometry and attributes
+** each packed into one block, trimmed to size) and counted against the
+** memory budget.
 ** Whatever needs the whole layer is gathered from every feature as it
 ** passes (field types, the robust extent), so a tile (run --tile), which
 ** keeps only the features within reach of its window, learns the same.
@@ -45,20 +46,6 @@ static char *unique_layer_name(run_state *s, size_t upto, const char *base)
         if (i == upto)
             return name;
         st_free(name);
-    }
-}
-
-/* Give back what the geometry builder over-allocated (it doubles its
-** arrays): every feature is held until the write, so the slack of a
-** million coordinate arrays adds up (docs/performance.md, memory). */
-static void trim_geometry(st_geom *g)
-{
-    if (g->xy && g->cap_coords > g->ncoords && g->ncoords > 0) {
-        double *xy = st_realloc(g->xy, 2 * (size_t)g->ncoords * sizeof *xy);
-        if (xy) {
-            g->xy = xy;
-            g->cap_coords = g->ncoords;
-        }
     }
 }
 
@@ -167,14 +154,17 @@ static st_status take_feature(run_state *s, st_reader *r, layer_scan *ls, size_t
         st_feature_free(f);
         return rc;
     }
-    trim_geometry(&f->geom);
+    /* Every feature is held until the write: its geometry in one block
+    ** trimmed to size (the builder doubles its arrays as it grows), its
+    ** attributes in another (docs/performance.md, memory per footprint). */
+    rc = st_geom_pack(&f->geom);
     /* A feature without an id of its own (a GeoJSON feature with no
     ** "id") is known by its 0-based position in the layer. */
-    if (!f->source_id &&
+    if (rc == ST_OK && !f->source_id &&
         !(f->source_id = st_strdup_printf("%llu", (unsigned long long)f->index)))
         rc = ST_ERR_NOMEM;
     if (rc == ST_OK)
-        rc = st_feature_pack_values(f);   /* one block: memory */
+        rc = st_feature_pack_values(f);
     if (rc == ST_OK)
         rc = st_run_guard_feature(&s->budget, f, st_reader_path(r), s->diags);
     if (rc == ST_OK)

@@ -224,15 +224,27 @@ static int32_t map_find(st_rules_ctx *c, const rmap *m, const char *s, size_t n,
     return lit;
 }
 
-static st_status set_value(st_feature *f, int32_t field, const char *text, size_t n,
-                           st_provenance from, const char *rule)
+/* Set a value to a string of the rule set (a code, the mixed value, the
+** unknown value, or NULL): borrowed, not copied, since the rule set
+** outlives the features (st_rules_apply). */
+static void set_code(st_feature *f, int32_t field, const char *code, st_provenance from,
+                     const char *rule)
 {
     st_field_value *v = &f->schema[field];
-    char *t = text ? st_strndup(text, n) : NULL;
-    if (text && !t)
+    st_field_value_borrow(v, code);
+    v->from = from;
+    v->rule = rule;
+}
+
+/* Set a value to text made for this feature: a copy of its n bytes. */
+static st_status set_text(st_feature *f, int32_t field, const char *text, size_t n,
+                          st_provenance from, const char *rule)
+{
+    st_field_value *v = &f->schema[field];
+    char *t = st_strndup(text, n);
+    if (!t)
         return ST_ERR_NOMEM;
-    st_free(v->text);
-    v->text = t;
+    st_field_value_take(v, t);
     v->from = from;
     v->rule = rule;
     return ST_OK;
@@ -303,12 +315,11 @@ static st_status run_map(st_rules_ctx *c, const rmap *m)
     if (c->rc != ST_OK)
         rc = c->rc;
     else if (li == -2)
-        rc = set_value(f, m->field, m->mixed, strlen(m->mixed), ST_PROV_SOURCE, m->rule);
+        set_code(f, m->field, m->mixed, ST_PROV_SOURCE, m->rule);
     else if (li == -1)
         rc = st_unmapped_add(c->unmapped, fd->name, whole, 1);
     else if (li >= 0 && m->lines[li]->target)
-        rc = set_value(f, m->field, m->lines[li]->target, strlen(m->lines[li]->target),
-                       ST_PROV_SOURCE, m->lines[li]->rule);
+        set_code(f, m->field, m->lines[li]->target, ST_PROV_SOURCE, m->lines[li]->rule);
     return rc;
 }
 
@@ -578,7 +589,7 @@ static st_status run_derive(st_rules_ctx *c, const rderive *d)
         char buf[512];
         if (!derived_text(c, l, (uint32_t)d->field, v, buf, sizeof buf))
             continue;
-        return set_value(c->f, d->field, buf, strlen(buf), ST_PROV_DERIVED, l->rule);
+        return set_text(c->f, d->field, buf, strlen(buf), ST_PROV_DERIVED, l->rule);
     }
     c->accept = 0;
     return c->rc;
@@ -590,13 +601,13 @@ static st_status reset_schema(const st_rules *R, st_feature *f)
 {
     if (f->schema && f->nschema == R->nfields) {
         for (uint32_t i = 0; i < f->nschema; i++) {
-            st_free(f->schema[i].text);
-            f->schema[i] = (st_field_value){NULL, ST_PROV_UNKNOWN, NULL};
+            st_field_value_take(&f->schema[i], NULL);
+            f->schema[i] = (st_field_value){.from = ST_PROV_UNKNOWN};
         }
         return ST_OK;
     }
     for (uint32_t i = 0; f->schema && i < f->nschema; i++)
-        st_free(f->schema[i].text);
+        st_field_value_take(&f->schema[i], NULL);
     st_free(f->schema);
     f->nschema = 0;
     f->schema = st_calloc(R->nfields ? R->nfields : 1, sizeof *f->schema);
@@ -634,8 +645,8 @@ st_status st_rules_apply(st_rules_ctx *c, st_feature *f, const st_fields *layer_
         if (v->from != ST_PROV_UNKNOWN)
             continue;
         const st_schema_field *fd = &R->fields[i];
-        rc = set_value(f, (int32_t)i, fd->unknown, fd->unknown ? strlen(fd->unknown) : 0,
-                       ST_PROV_UNKNOWN, fd->unknown_rule ? fd->unknown_rule : fd->rule);
+        set_code(f, (int32_t)i, fd->unknown, ST_PROV_UNKNOWN,
+                 fd->unknown_rule ? fd->unknown_rule : fd->rule);
     }
     c->f = NULL;
     c->out = NULL;

@@ -42,7 +42,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
             fuzz_die("a refused record is not ST_ERR_FORMAT, or left a feature");
     } else {
         check_geom(&f->geom);
-        check_geom(&f->source_geom);
+        if (f->source_geom)
+            check_geom(f->source_geom);
         st_buf b;
         st_buf_init(&b, 0);
         if (st_feature_encode(f, &b) != ST_OK)
