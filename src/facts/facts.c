@@ -571,12 +571,12 @@ static st_status take_digest(cursor *c, st_facts *f)
     st_status rc = take(c, "sha256", &v);
     if (rc != ST_OK)
         return rc;
+    if (c->pos != c->len)
+        return bad(c, "text after the digest", "");
     memcpy(f->sha256, c->digest, sizeof f->sha256);
     if (strcmp(v, f->sha256) != 0)
         return bad(c, "the digest does not match the contents (the file was changed or "
                       "damaged)", "");
-    if (c->pos != c->len)
-        return bad(c, "text after the digest", "");
     return ST_OK;
 }
 
