@@ -10,7 +10,8 @@
 **
 ** Per input layer, in input order: the input as given, the file it names
 ** with its size and modification time (so a changed input is refused
-** before it is read), format, layer name, the feature count (bids: a
+** before it is read), format, layer name, the CRS it is read from (the
+** file's or --crs), the feature count (bids: a
 ** layer's features follow those of the layers before it), per field
 ** whether a value that is not a number was met in a numeric field (the
 ** field is then read as text), the robust extent of the features'
@@ -41,6 +42,7 @@ typedef struct st_facts_layer {
     long long mtime_s, mtime_ns; /* modification time */
     char *format;                /* st_reader_format_name */
     char *name;                  /* st_reader_layer_name */
+    char *crs;                   /* st_reader_crs: the CRS read from ("" none) */
     uint64_t count;              /* features */
     uint32_t nfields;
     uint8_t *text;               /* per field: 1 when a numeric field holds

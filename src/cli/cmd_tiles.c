@@ -167,7 +167,8 @@ static st_status scan_input(const char *path, const char *crs, int z, key_list *
         lf->file = st_strdup(st_reader_path(r));
         lf->format = st_strdup(st_reader_format_name(r));
         lf->name = st_strdup(st_reader_layer_name(r));
-        rc = lf->spec && lf->file && lf->format && lf->name ? ST_OK : ST_ERR_NOMEM;
+        lf->crs = st_strdup(st_reader_crs(r) ? st_reader_crs(r) : "");
+        rc = lf->spec && lf->file && lf->format && lf->name && lf->crs ? ST_OK : ST_ERR_NOMEM;
     }
     if (rc == ST_OK)
         rc = st_facts_stat(lf, d);

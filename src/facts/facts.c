@@ -8,7 +8,7 @@
 **     stocktake-facts 1
 **     layers N
 **     layer                       (N times, each with the lines below)
-**     spec S / file S / size N / mtime SEC NSEC / format S / name S
+**     spec S / file S / size N / mtime SEC NSEC / format S / name S / crs S
 **     count N
 **     fields N FLAGS              (FLAGS: one 0 or 1 per field; "-" for none)
 **     extent VALID XMIN YMIN XMAX YMAX      (%.17g: read back exactly)
@@ -44,6 +44,7 @@ void st_facts_layer_free(st_facts_layer *l)
     st_free(l->file);
     st_free(l->format);
     st_free(l->name);
+    st_free(l->crs);
     st_free(l->text);
     st_free(l->coordless);
     memset(l, 0, sizeof *l);
@@ -260,6 +261,8 @@ static st_status put_layer(st_buf *b, const st_facts_layer *l)
         rc = put_string(b, "format", l->format);
     if (rc == ST_OK)
         rc = put_string(b, "name", l->name);
+    if (rc == ST_OK)
+        rc = put_string(b, "crs", l->crs ? l->crs : "");
     if (rc == ST_OK)
         rc = st_buf_printf(b, "count %" PRIu64 "\n", l->count);
     if (rc == ST_OK)
@@ -548,6 +551,8 @@ static st_status take_layer(cursor *c, st_facts_layer *l)
         rc = take_string(c, "format", &l->format);
     if (rc == ST_OK)
         rc = take_string(c, "name", &l->name);
+    if (rc == ST_OK)
+        rc = take_string(c, "crs", &l->crs);
     if (rc == ST_OK)
         rc = take_number(c, "count", 0, LLONG_MAX, &count);
     l->count = (uint64_t)count;

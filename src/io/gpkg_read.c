@@ -5,6 +5,10 @@
 ** Input:   r->path, opened read-only and immutable, so the file is never
 **          modified and no -journal, -wal or -shm file appears beside it;
 **          r->layer_request names the table when there are several.
+**          With r->opt.window (a part given the layer facts, io.h), only
+**          the rows whose R-tree box meets the window's boxes (carried
+**          into the layer's CRS by PROJ) and the rows it lists, when the
+**          R-tree is there and fits; else every row.
 ** Output:  features with source_id = the integer primary key (fid),
 **          attributes as UTF-8 text typed by each column's declared type,
 **          geometry decoded by io/gpkg_blob.c; the layer's CRS as

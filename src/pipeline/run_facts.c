@@ -78,6 +78,11 @@ st_status st_run_facts_check_input(run_state *s, size_t l, const st_reader *r)
         return st_run_facts_mismatch(s, l, "it is the %s layer '%s', the facts say the %s "
                                      "layer '%s'", st_reader_format_name(r),
                                      st_reader_layer_name(r), given->format, given->name);
+    const char *crs = st_reader_crs(r) ? st_reader_crs(r) : "";
+    if (strcmp(given->crs, crs) != 0)
+        return st_run_facts_mismatch(s, l, "it is read from the CRS '%s', the facts from '%s' "
+                                     "(give 'stocktake tiles' the same --crs)", crs,
+                                     given->crs);
     return ST_OK;
 }
 

@@ -4,8 +4,11 @@
 ** layers, from 1) and a source id, made compact (coordinates trimmed,
 ** attributes packed) and counted against the memory budget.
 ** Whatever needs the whole layer is gathered from every feature as it
-** passes (field types, the robust extent), so a tile (run --tile), which
-** keeps only the features within reach of its window, learns the same.
+** passes (field types, the robust extent; facts.h), so a tile (run
+** --tile), which keeps only the features within reach of its window,
+** learns the same. A tile given the layer facts (--facts) takes them from
+** there instead and reads a GeoPackage through its R-tree (run_facts.c);
+** a layer it still streams whole must then say what the facts say.
 ** Each full chunk of kept features (and each layer's last) goes to the
 ** footprint checks as soon as it is read (run_geometry.c): they run on the
 ** other workers while this thread reads on.

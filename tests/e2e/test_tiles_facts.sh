@@ -8,7 +8,7 @@
 # (their notes say how many) and merge equal to a single run feature by
 # feature; parts made without facts merge with them to the same result.
 # Refused with exit 2: a changed input, a damaged facts file, facts of
-# other inputs, facts without a window; merge refuses parts made with
+# other inputs or read from another CRS (--crs), facts without a window; merge refuses parts made with
 # facts that say something else of the layers. A GeoJSON input keeps its
 # whole read and is checked against the facts too.
 . "$ST_TESTS_ROOT/e2e/lib.sh"
@@ -117,6 +117,9 @@ expect_rc 2 "$STOCKTAKE" run -q --facts facts.txt -o p.gpkg osm.gpkg cad.gpkg
 expect_stderr "--facts goes with --tile or --bbox"
 expect_rc 2 "$STOCKTAKE" run -q --facts nothing.txt --tile "$t" -o p.gpkg $ins
 expect_stderr "nothing.txt"
+# shellcheck disable=SC2086
+expect_rc 2 "$STOCKTAKE" run -q $opts --crs EPSG:32609 --facts facts.txt --tile "$t" -o p.gpkg $ins
+expect_stderr "facts.txt.*input 1 \(osm.gpkg\) .*read from the CRS 'EPSG:32609'"
 touch -d '2001-01-01' cad.gpkg
 # shellcheck disable=SC2086
 expect_rc 2 "$STOCKTAKE" run -q $opts --facts facts.txt --tile "$t" -o p.gpkg $ins

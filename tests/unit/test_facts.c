@@ -96,6 +96,7 @@ static void make_facts(st_facts *facts)
         lf->file = st_strdup(l == 0 ? "a b%.gpkg" : "c.gpkg");
         lf->format = st_strdup("gpkg");
         lf->name = st_strdup(l == 0 ? "layer" : "c");
+        lf->crs = st_strdup(l == 0 ? "EPSG:4326" : "");
         lf->size = 1234;
         lf->mtime_s = 1700000000;
         lf->mtime_ns = 123456789;
@@ -142,6 +143,7 @@ static void test_round_trip(void **state)
         assert_string_equal(x->file, y->file);
         assert_string_equal(x->format, y->format);
         assert_string_equal(x->name, y->name);
+        assert_string_equal(x->crs, y->crs);
         assert_int_equal(x->size, y->size);
         assert_int_equal(x->mtime_s, y->mtime_s);
         assert_int_equal(x->mtime_ns, y->mtime_ns);
@@ -270,6 +272,7 @@ static void test_damage_refused(void **state)
         {"spec a%20b%25.gpkg:layer", "spec a\tb", "unencoded byte"},
         {"mtime 1700000000 123456789", "mtime 1700000000 1234567890", "bad time"},
         {"size 1234\n", "", "expected a line size"},
+        {"crs EPSG:4326\n", "", "expected a line crs"},
         {"end\n", "end\nextra\n", "expected a line"},
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
