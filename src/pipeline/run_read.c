@@ -66,6 +66,8 @@ static void trim_geometry(st_geom *g)
     }
 }
 
+/* A numeric field in which the layer holds a value that is not a number
+** is written as text (facts.c note_text_values says why). */
 static void demote_numeric_fields(const st_facts_layer *lf, st_fields *fl)
 {
     for (uint32_t k = 0; k < lf->nfields && k < fl->count; k++)
