@@ -6,7 +6,9 @@
 # coordinates and with swapped axes, one in UTM zone 9N, EPSG:32609): the
 # parts made with the facts read fewer features than each layer holds
 # (their notes say how many) and merge equal to a single run feature by
-# feature; parts made without facts merge with them to the same result.
+# feature; parts made without facts merge with them to the same result;
+# two boxes with a 1 m halo, which the run widens and reads again through
+# the R-tree, merge equal too.
 # Refused with exit 2: a changed input, a damaged facts file, facts of
 # other inputs or read from another CRS (--crs), facts without a window; merge refuses parts made with
 # facts that say something else of the layers. A GeoJSON input keeps its
@@ -80,6 +82,23 @@ done
     { cat err >&2; fail "merge of parts made with and without facts failed"; }
 $PY "$ST_TESTS_ROOT/e2e/compare_inventories.py" single.gpkg mixed.gpkg >/dev/null ||
     fail "parts made with and without facts merged differ from the single run"
+
+# two boxes cut at the town's middle with a 1 m halo: the run widens the
+# halo itself and reads through the R-tree again with the wider box
+mid=-126.2375
+# shellcheck disable=SC2086
+"$STOCKTAKE" run $opts --facts facts.txt --bbox "-127,-49,$mid,-47" --halo 1 -o west.gpkg \
+    $ins >/dev/null 2>err || { cat err >&2; fail "west box with facts failed"; }
+grep -q "reading again with" err || fail "no halo widening noted: $(cat err)"
+[ "$(grep -c "osm.gpkg: note: read [0-9]* of 3000 features through the R-tree" err)" -ge 2 ] ||
+    fail "the wider halo was not read through the R-tree: $(cat err)"
+# shellcheck disable=SC2086
+"$STOCKTAKE" run -q $opts --facts facts.txt --bbox "$mid,-49,-125,-47" --halo 1 -o east.gpkg \
+    $ins 2>/dev/null || fail "east box with facts failed"
+# shellcheck disable=SC2086
+"$STOCKTAKE" merge -q $opts -o boxes.gpkg west.gpkg east.gpkg || fail "merge of boxes failed"
+$PY "$ST_TESTS_ROOT/e2e/compare_inventories.py" single.gpkg boxes.gpkg >/dev/null ||
+    fail "two boxes with facts and a widened halo merged differ from the single run"
 
 t=$(head -n 1 tiles)
 # facts that say another extent (a whole, undamaged file): the part takes
