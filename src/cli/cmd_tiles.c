@@ -38,6 +38,7 @@ void st_help_tiles(FILE *out)
             "                 types, extents, fids) for 'stocktake run --tile ...\n"
             "                 --facts FILE': each part then checks its inputs are\n"
             "                 unchanged and reads a GeoPackage through its R-tree\n"
+            "\n"
             "exit: 0 done; 2 error.\n");
 }
 
