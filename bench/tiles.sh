@@ -10,6 +10,11 @@
 # against the single run's (same -j 1, same session).
 #
 #   TILES_N=200000 TILES_RUNS=3 sh bench/tiles.sh      # = make bench-tiles
+#
+# TILES_FORMAT=gpkg runs the same on the town converted to a GeoPackage
+# (stocktake convert, kept beside the GeoJSONL), its parts given the layer
+# facts (stocktake tiles --facts, made once and timed apart) so that each
+# reads through the R-tree; TILES_FACTS=0 leaves the facts out.
 set -u
 cd "$(dirname "$0")/.." || exit 2
 ST=${STOCKTAKE:-build/stocktake}
@@ -22,13 +27,24 @@ export ST SEED PY TIME
 . bench/lib.sh
 D=$(town "$N") || exit 2
 IN=$D/buildings_osm.geojsonl
+FORMAT=${TILES_FORMAT:-geojsonl}
 W=$(mktemp -d)
 trap 'rm -rf "$W"' EXIT
+if [ "$FORMAT" = gpkg ]; then
+    [ -f "$D/buildings_osm.gpkg" ] || "$ST" convert -q "$IN" "$D/buildings_osm.gpkg" ||
+        { echo "bench: could not convert the town to a GeoPackage" >&2; exit 2; }
+    IN=$D/buildings_osm.gpkg
+fi
+FACTS=""
+if [ "$FORMAT" = gpkg ] && [ "${TILES_FACTS:-1}" = 1 ]; then
+    FACTS="--facts $W/facts.txt"
+fi
 SOURCE_DATE_EPOCH=1700000000
 export SOURCE_DATE_EPOCH
 OPTS="-r bench/bench.rules --districts $D/districts.geojson --district-key district_id
 --region-key region_id --reference $D/reference_counts.csv --fill draw --seed 3 -j 1 -q"
 machine
+echo "input: $IN${FACTS:+ (parts with --facts)}"
 
 # t CMD...: "wall cpu" of one command (GNU time), its exit code checked.
 t() {
@@ -58,6 +74,14 @@ done
 s_wall=$(cut -d' ' -f1 "$W/single" | median)
 s_cpu=$(cut -d' ' -f2 "$W/single" | median)
 printf '%-7s %8s %8s %9s %9s    (single run, median of %d: wall %s s, cpu %s s)\n' 1 - - - - "$RUNS" "$s_wall" "$s_cpu"
+if [ -n "$FACTS" ]; then
+    : >"$W/facts"
+    for r in $(seq "$RUNS"); do
+        t "$ST" tiles -z 0 --facts "$W/facts.txt" "$IN" | tail -n 1 >>"$W/facts"
+    done
+    echo "(the facts once: stocktake tiles --facts, median wall $(cut -d' ' -f1 "$W/facts" |
+        median) s, cpu $(cut -d' ' -f2 "$W/facts" | median) s; not in the figures below)"
+fi
 for k in 1 2 4 16; do
     : >"$W/runs"
     for r in $(seq "$RUNS"); do
@@ -66,7 +90,7 @@ for k in 1 2 4 16; do
         for b in $(boxes "$k"); do
             i=$((i + 1))
             # shellcheck disable=SC2086
-            x=$(t "$ST" run $OPTS --bbox "$b" -o "$W/parts/$i.gpkg" "$IN")
+            x=$(t "$ST" run $OPTS $FACTS --bbox "$b" -o "$W/parts/$i.gpkg" "$IN")
             sum=$(echo "$sum $x" | awk '{print $1 + $3}')
             max=$(echo "$max $x" | awk '{print ($2 > $1) ? $2 : $1}')
         done

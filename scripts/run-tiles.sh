@@ -6,14 +6,18 @@
 # Usage:   scripts/run-tiles.sh [OPTIONS] -z ZOOM -o OUT INPUT... [-- RUN-OPTIONS...]
 #
 #   -z, --zoom ZOOM       split the job into the web-mercator tiles of ZOOM
-#                         that hold footprints ('stocktake tiles')
+#                         that hold footprints ('stocktake tiles', which
+#                         also writes the layer facts every tile takes with
+#                         'run --facts': a GeoPackage input is then read
+#                         through its R-tree for each tile's window only)
 #   -o, --output OUT      the merged inventory (OUT.gpkg, .geojson, ...)
 #   --report DIR          the merged report (DIR/report.json, report.html)
 #   -P, --jobs N          tiles run at once on each host (default: one per
 #                         CPU core, GNU parallel's default)
 #   -t, --tile-threads N  threads of each tile's run (default 1)
 #   --halo METRES         the halo each tile reads (stocktake run --halo)
-#   --parts DIR           write the parts, the tile list and the job log in
+#   --parts DIR           write the parts, the tile list, the layer facts
+#                         (facts.txt) and the job log in
 #                         DIR and keep them (default: a temporary folder
 #                         beside OUT, removed at the end)
 #   --keep-parts          keep the temporary parts folder and say where
@@ -30,7 +34,7 @@
 #   and to 'stocktake merge' unchanged (-r, --districts, --district-key,
 #   --region-key, --reference, --fill, --seed, --crs, --max-memory,
 #   --fail-on ...); --crs goes to 'stocktake tiles' too. -o, --report,
-#   --tile, --bbox and --halo are this script's to give.
+#   --tile, --bbox, --halo and --facts are this script's to give.
 #
 # Input:   $STOCKTAKE, the binary (default: 'stocktake' on PATH, else
 #          build/stocktake beside this script); $PARALLEL, more options for
@@ -96,7 +100,7 @@ while [ $# -gt 0 ]; do
         --) shift
             while [ $# -gt 0 ]; do
                 case $1 in
-                    -o | --output | --report | --tile | --bbox | --halo)
+                    -o | --output | --report | --tile | --bbox | --halo | --facts)
                         die "give $1 to $me itself, not after '--' (see --help)" ;;
                     --crs) need "$1" $#; crs=$2 ;;
                 esac
@@ -158,11 +162,11 @@ trap finish EXIT
 trap 'exit 130' INT
 trap 'exit 143' TERM
 
-# 1. The tiles, one Z/X/Y a line.
+# 1. The tiles, one Z/X/Y a line, and the layer facts of the inputs.
 eval "set -- $inputs"
 if [ -n "$crs" ]; then set -- --crs "$crs" "$@"; fi
 rc=0
-"$st" tiles -z "$zoom" "$@" >"$parts/tiles.txt" || rc=$?
+"$st" tiles -z "$zoom" --facts "$parts/facts.txt" "$@" >"$parts/tiles.txt" || rc=$?
 [ "$rc" -eq 0 ] || die "'stocktake tiles' could not list the tiles (exit $rc); nothing written"
 ntiles=$(wc -l <"$parts/tiles.txt" | tr -d ' ')
 [ "$ntiles" -gt 0 ] ||
@@ -174,7 +178,7 @@ say "$ntiles tiles at zoom $zoom; parts in $parts"
 eval "set -- $inputs"
 eval "set -- $runopts -j $(q "$threads") -q -o $(q "$parts")/'{= s:/:-:g =}.gpkg' \"\$@\""
 if [ -n "$halo" ]; then set -- --halo "$halo" "$@"; fi
-set -- "$st" run --tile '{}' "$@"
+set -- "$st" run --tile '{}' --facts "$parts/facts.txt" "$@"
 popts="--will-cite --halt now,fail=1 --joblog $(q "$parts/joblog") --tagstring {}"
 [ -n "$jobs" ] && popts="$popts --jobs $(q "$jobs")"
 [ -n "$retries" ] && popts="$popts --retries $(q "$retries")"

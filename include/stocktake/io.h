@@ -31,9 +31,36 @@ typedef struct st_read_options {
                                   is an ST_ERR_FORMAT error; 0: the feature is
                                   returned and a later stage flags it */
     int keep_source_crs;       /* 1: do not reproject (inspect) */
+    const struct st_read_window *window;   /* NULL: every feature */
 } st_read_options;
 
-#define ST_READ_OPTIONS_DEFAULT ((st_read_options){NULL, 0, 0})
+#define ST_READ_OPTIONS_DEFAULT ((st_read_options){NULL, 0, 0, NULL})
+
+/*
+** A window to read a GeoPackage layer through its R-tree (a part of a job
+** split by windows, facts.h): only the rows whose R-tree box meets one of
+** the lon/lat boxes, and the rows at the positions 'always', in fid
+** order. The caller vouches, from the layer's facts, that the fids are
+** dense (fid = fid_min + position) and that the layer has 'count' rows,
+** of which all but the 'always' ones have coordinates. The reader reads
+** the window only when the layer has an R-tree holding count - nalways
+** rows, its CRS is lon/lat WGS 84 (or a box can be carried into it) and
+** the list is not too long; else it reads every row (st_reader_windowed
+** says which). A feature read through a window has its position in the
+** layer as its index.
+*/
+typedef struct st_read_window {
+    double box[2][4];          /* west, south, east, north */
+    int nbox;                  /* 1 or 2 */
+    int64_t fid_min;
+    uint64_t count;
+    const uint64_t *always;    /* positions, rising; borrowed */
+    size_t nalways;
+} st_read_window;
+
+/* The most 'always' positions a windowed read takes (a longer list: the
+** whole layer is read). */
+#define ST_READ_WINDOW_MAX_ALWAYS 100000
 
 /*
 ** Open the layer at 'spec' ("path" or "path.gpkg:layer"); 'spec' and 'opt'
@@ -69,6 +96,8 @@ const char *st_reader_crs_def(const st_reader *r);
 long long st_reader_count_hint(const st_reader *r);
 /* Bytes consumed so far and total, for a progress display (0 if unknown). */
 void st_reader_progress(const st_reader *r, long long *done, long long *total);
+/* 1 when the reader reads through opt->window, 0 when it reads every row. */
+int st_reader_windowed(const st_reader *r);
 /* The file the reader opened (borrowed). */
 const char *st_reader_path(const st_reader *r);
 void st_reader_close(st_reader *r);
@@ -169,6 +198,12 @@ st_status st_crs_to_wgs84(const char *source, const char *file,
 ** infinite; the count of such points is returned in *failed. */
 st_status st_crs_apply(st_crs_transform *t, double *xy, size_t n,
                        size_t *failed) ST_MUST_CHECK;
+/* The lon/lat box in[4] (west, south, east, north) carried into t's
+** source CRS (axis order as stored: x first): the bounds of its densified
+** edges, grown by 5% a side so that the bowed edges between the points
+** stay inside. ST_ERR_PROJ (no diagnostic) when PROJ cannot. */
+st_status st_crs_box_to_source(st_crs_transform *t, const double in[4],
+                               double out[4]) ST_MUST_CHECK;
 /* Short name of the source CRS ("EPSG:32643" when it has an EPSG id). */
 const char *st_crs_name(const st_crs_transform *t);
 void st_crs_free(st_crs_transform *t);

@@ -63,6 +63,11 @@ typedef struct st_run_options {
     const char *tile;
     const char *bbox;
     double halo_m;
+    /* A part only: the layer facts `stocktake tiles --facts` wrote for
+    ** these inputs (facts.h), or NULL. Every input is checked against
+    ** them before it is read; a GeoPackage input with dense fids and an
+    ** R-tree is read only within reach of the window. */
+    const char *facts;
 } st_run_options;
 
 /* The halo a part reads around its window unless told otherwise: wider

@@ -53,6 +53,10 @@ void st_help_run(FILE *out)
             "                       south <= lat < north)\n"
             "  --halo METRES        how far around the window a part reads (default\n"
             "                       500; widened by the run itself when needed)\n"
+            "  --facts FILE         with --tile/--bbox: the layer facts 'stocktake tiles\n"
+            "                       --facts' wrote for these inputs; a changed input is\n"
+            "                       refused (exit 2), and a GeoPackage input is read\n"
+            "                       through its R-tree for the window only\n"
             "  --max-memory SIZE    stop early (exit 2) rather than need more memory\n"
             "                       than SIZE (512M, 4G ...); default: 75%% of\n"
             "                       physical memory or 8G, whichever is less\n"
@@ -249,6 +253,8 @@ static int parse_args(int argc, char **argv, run_args *a)
             a->opt.tile = argv[++i];
         else if (!strcmp(arg, "--bbox") && has_next && !strcmp(a->cmd, "run"))
             a->opt.bbox = argv[++i];
+        else if (!strcmp(arg, "--facts") && has_next && !strcmp(a->cmd, "run"))
+            a->opt.facts = argv[++i];
         else if (!strcmp(arg, "--halo") && has_next && !strcmp(a->cmd, "run")) {
             char *end = NULL;
             a->opt.halo_m = strtod(argv[++i], &end);
@@ -281,6 +287,8 @@ static int parse_args(int argc, char **argv, run_args *a)
                                   "-o PART.gpkg");
     if (a->opt.halo_m > 0 && !a->opt.tile && !a->opt.bbox)
         return st_cli_usage_error(a->cmd, "--halo goes with --tile or --bbox");
+    if (a->opt.facts && !a->opt.tile && !a->opt.bbox)
+        return st_cli_usage_error(a->cmd, "--facts goes with --tile or --bbox");
     if ((a->opt.district_key || a->opt.region_key || a->opt.reference) && !a->opt.districts)
         return st_cli_usage_error(a->cmd, "--district-key, --region-key and --reference "
                                          "need --districts");

@@ -11,11 +11,16 @@
 ** back before its owner is decided, so the tiles of its swapped box are
 ** listed too. Footprints without coordinates are held by every part and
 ** need no tile of their own.
+**
+** With --facts FILE it also writes the layer facts of the inputs
+** (facts.h) for `run --tile ... --facts FILE`: it reads every input whole
+** anyway, so the parts need not.
 */
 #include <stdlib.h>
 #include <string.h>
 
 #include "cli.h"
+#include "stocktake/facts.h"
 #include "stocktake/footprint.h"
 #include "stocktake/io.h"
 #include "stocktake/tile.h"
@@ -23,11 +28,17 @@
 void st_help_tiles(FILE *out)
 {
     fprintf(out,
-            "usage: stocktake tiles -z ZOOM [--crs EPSG:N] INPUT...\n"
+            "usage: stocktake tiles -z ZOOM [--crs EPSG:N] [--facts FILE] INPUT...\n"
             "\n"
             "Print the web-mercator tiles Z/X/Y of zoom ZOOM that hold footprints of\n"
             "the INPUT layers, one a line in order: the windows of 'stocktake run\n"
             "--tile' for a job too large for one run (docs/scale.md).\n"
+            "\n"
+            "  --facts FILE   also write the layer facts of the inputs (counts, field\n"
+            "                 types, extents, fids) for 'stocktake run --tile ...\n"
+            "                 --facts FILE': each part then checks its inputs are\n"
+            "                 unchanged and reads a GeoPackage through its R-tree\n"
+            "\n"
             "exit: 0 done; 2 error.\n");
 }
 
@@ -127,30 +138,66 @@ static int add_layer(key_list *k, const layer_boxes *lb, int z)
     return 1;
 }
 
-static int read_input(const char *path, const char *crs, int z, key_list *k)
+/* Read one input: its boxes into k, its facts into *lf. */
+static st_status scan_input(const char *path, const char *crs, int z, key_list *k,
+                            st_facts_layer *lf, st_diags *d)
 {
     st_read_options ro = ST_READ_OPTIONS_DEFAULT;
     ro.crs_override = crs;
-    st_diags d;
-    st_diags_init(&d);
     st_reader *r = NULL;
     layer_boxes lb = {NULL, NULL, 0, 0};
-    st_status rc = st_reader_open(path, &ro, &d, &r);
+    st_facts_scan sc;
+    st_facts_scan_begin(&sc, lf);
+    st_status rc = st_reader_open(path, &ro, d, &r);
+    int gpkg = rc == ST_OK && !strcmp(st_reader_format_name(r), "gpkg");
     while (rc == ST_OK) {
         st_feature *f = NULL;
         rc = st_reader_next(r, &f);
         if (rc != ST_OK || !f)
             break;
-        int ok = keep_box(&lb, f);
+        rc = keep_box(&lb, f) ? st_facts_scan_feature(&sc, lf, st_reader_fields(r), f, gpkg)
+                              : ST_ERR_NOMEM;
         st_feature_free(f);
-        if (!ok)
-            rc = ST_ERR_NOMEM;
     }
+    if (rc == ST_OK)
+        rc = st_facts_scan_end(&sc, lf, st_reader_fields(r));
     if (rc == ST_OK && !add_layer(k, &lb, z))
         rc = ST_ERR_NOMEM;
+    if (rc == ST_OK) {
+        lf->spec = st_strdup(path);
+        lf->file = st_strdup(st_reader_path(r));
+        lf->format = st_strdup(st_reader_format_name(r));
+        lf->name = st_strdup(st_reader_layer_name(r));
+        lf->crs = st_strdup(st_reader_crs(r) ? st_reader_crs(r) : "");
+        rc = lf->spec && lf->file && lf->format && lf->name && lf->crs ? ST_OK : ST_ERR_NOMEM;
+    }
+    if (rc == ST_OK)
+        rc = st_facts_stat(lf, d);
+    st_facts_scan_free(&sc);
     free(lb.box);
     free(lb.centre);
     st_reader_close(r);
+    return rc;
+}
+
+static int read_input(const char *path, const char *crs, int z, key_list *k,
+                      st_facts_layer *lf)
+{
+    st_diags d;
+    st_diags_init(&d);
+    st_status rc = scan_input(path, crs, z, k, lf, &d);
+    st_cli_print_diags(&d);
+    st_diags_free(&d);
+    if (rc == ST_ERR_NOMEM)
+        fprintf(stderr, "stocktake tiles: out of memory\n");
+    return rc == ST_OK;
+}
+
+static int write_facts(st_facts *facts, const char *path)
+{
+    st_diags d;
+    st_diags_init(&d);
+    st_status rc = st_facts_write(facts, path, &d);
     st_cli_print_diags(&d);
     st_diags_free(&d);
     if (rc == ST_ERR_NOMEM)
@@ -161,7 +208,7 @@ static int read_input(const char *path, const char *crs, int z, key_list *k)
 int st_cmd_tiles(int argc, char **argv)
 {
     int z = -1;
-    const char *crs = NULL;
+    const char *crs = NULL, *facts_path = NULL;
     key_list k = {NULL, 0, 0};
     int ok = 1, ninputs = 0;
     for (int i = 1; i < argc && ok; i++) {
@@ -176,6 +223,8 @@ int st_cmd_tiles(int argc, char **argv)
             z = (int)v;
         } else if (!strcmp(argv[i], "--crs") && i + 1 < argc)
             crs = argv[++i];
+        else if (!strcmp(argv[i], "--facts") && i + 1 < argc)
+            facts_path = argv[++i];
         else if (argv[i][0] == '-' && argv[i][1]) {
             free(k.keys);
             return st_cli_usage_error("tiles", "unknown or incomplete option '%s'", argv[i]);
@@ -186,13 +235,18 @@ int st_cmd_tiles(int argc, char **argv)
         free(k.keys);
         return st_cli_usage_error("tiles", "give a zoom with -z and at least one input layer");
     }
+    st_facts facts = {st_calloc((size_t)ninputs, sizeof *facts.layers), 0, ""};
+    ok = facts.layers != NULL;
     for (int i = 1; i < argc && ok; i++) {
         if (argv[i][0] == '-' && argv[i][1]) {
             i++;   /* every option here takes a value */
             continue;
         }
-        ok = read_input(argv[i], crs, z, &k);
+        ok = read_input(argv[i], crs, z, &k, &facts.layers[facts.n++]);
     }
+    if (ok && facts_path)
+        ok = write_facts(&facts, facts_path);
+    st_facts_free(&facts);
     if (ok && k.n)
         qsort(k.keys, k.n, sizeof *k.keys, by_key);
     for (size_t i = 0; ok && i < k.n; i++)

@@ -300,6 +300,26 @@ const char *st_crs_name(const st_crs_transform *t)
     return t && t->name ? t->name : "EPSG:4326";
 }
 
+st_status st_crs_box_to_source(st_crs_transform *t, const double in[4], double out[4])
+{
+    double b[4];
+    proj_errno_reset(t->op);
+    if (!proj_trans_bounds(t->s.ctx, t->op, PJ_INV, in[0], in[1], in[2], in[3], &b[0],
+                           &b[1], &b[2], &b[3], 21))
+        return ST_ERR_PROJ;
+    for (int i = 0; i < 4; i++)
+        if (!isfinite(b[i]))
+            return ST_ERR_PROJ;
+    /* the edges between the densified points bow: 5% a side covers them
+    ** for any window a part reads (kilometres, not continents) */
+    double mx = 0.05 * (b[2] - b[0]), my = 0.05 * (b[3] - b[1]);
+    out[0] = b[0] - mx;
+    out[1] = b[1] - my;
+    out[2] = b[2] + mx;
+    out[3] = b[3] + my;
+    return ST_OK;
+}
+
 void st_crs_free(st_crs_transform *t)
 {
     if (!t)

@@ -5,6 +5,10 @@
 ** Input:   r->path, opened read-only and immutable, so the file is never
 **          modified and no -journal, -wal or -shm file appears beside it;
 **          r->layer_request names the table when there are several.
+**          With r->opt.window (a part given the layer facts, io.h), only
+**          the rows whose R-tree box meets the window's boxes (carried
+**          into the layer's CRS by PROJ) and the rows it lists, when the
+**          R-tree is there and fits; else every row.
 ** Output:  features with source_id = the integer primary key (fid),
 **          attributes as UTF-8 text typed by each column's declared type,
 **          geometry decoded by io/gpkg_blob.c; the layer's CRS as
@@ -44,6 +48,10 @@ typedef struct gpkg_reader {
     int has_fid;             /* result column 0 holds the integer key */
     int done;                /* the statement reached its end */
     long long rows_read;
+    char *head;              /* "SELECT fid, geom, fields... FROM t", owned */
+    char *fid_col;           /* the quoted key column, owned ("" without) */
+    int window_tried;        /* the first next() decided how to read */
+    int windowed;            /* reading through r->opt.window */
 } gpkg_reader;
 
 st_status st_gpkg_quote_ident(st_buf *b, const char *name)
@@ -449,6 +457,10 @@ static st_status read_columns(st_reader *r, gpkg_reader *g, st_buf *select)
         rc = st_buf_puts(select, " FROM ");
     if (rc == ST_OK)
         rc = st_gpkg_quote_ident(select, g->table);
+    if (rc == ST_OK && !(g->head = st_strdup(select->data)))
+        rc = ST_ERR_NOMEM;
+    if (rc == ST_OK && !(g->fid_col = st_strdup(g->has_fid ? fid.data : "")))
+        rc = ST_ERR_NOMEM;
     if (rc == ST_OK && g->has_fid)
         rc = st_buf_printf(select, " ORDER BY %s", fid.data);
     st_buf_free(&fid);
@@ -608,12 +620,157 @@ static st_status read_row(st_reader *r, gpkg_reader *g, st_feature *f)
     return rc;
 }
 
+/* ---- reading through a window (io.h st_read_window) ---------------------- */
+
+/* The R-tree of the layer: "rtree_<table>_<column>" (GeoPackage 1.x,
+** extension gpkg_rtree_index), quoted into b; 0 when there is none. */
+static int rtree_name(st_reader *r, gpkg_reader *g, st_buf *b)
+{
+    char *name = st_strdup_printf("rtree_%s_%s", g->table, g->geom_column);
+    long long n = 0;
+    st_diags quiet;
+    st_diags_init(&quiet);
+    st_diags *loud = r->diags;
+    r->diags = &quiet;   /* a file without one is no error */
+    st_status rc = name ? query_int(r, "SELECT count(*) FROM sqlite_master WHERE "
+                                       "type = 'table' AND name = ?", name, &n,
+                                    "looking for the R-tree") : ST_ERR_NOMEM;
+    r->diags = loud;
+    st_diags_free(&quiet);
+    int ok = rc == ST_OK && n == 1 && st_gpkg_quote_ident(b, name) == ST_OK;
+    st_free(name);
+    return ok;
+}
+
+/* 1 when the R-tree may hold a row for every feature the window does not
+** list as always read: no more rows than the table, at least as many as
+** the features not listed (a cheap check against a stale R-tree; the
+** rows themselves are not compared). */
+static int rtree_complete(st_reader *r, const char *rtree)
+{
+    const st_read_window *w = r->opt.window;
+    char *sql = st_strdup_printf("SELECT count(*) FROM %s", rtree);
+    long long n = -1;
+    st_diags quiet;
+    st_diags_init(&quiet);
+    st_diags *loud = r->diags;
+    r->diags = &quiet;
+    st_status rc = sql ? query_int(r, sql, NULL, &n, "counting the R-tree") : ST_ERR_NOMEM;
+    r->diags = loud;
+    st_diags_free(&quiet);
+    st_free(sql);
+    return rc == ST_OK && n >= 0 && (uint64_t)n <= w->count &&
+           (uint64_t)n + w->nalways >= w->count && (uint64_t)r->count_hint == w->count;
+}
+
+/* The window's boxes in the layer's own coordinates: how many (0: none
+** can be carried there, read every row). A feature of a projected layer
+** comes out of PROJ in lon/lat range (or not finite: then it is one the
+** caller lists as always read), so the part of a box beyond the poles
+** (a swapped box) meets none and is cut off. */
+static int source_boxes(st_reader *r, double box[2][4])
+{
+    const st_read_window *w = r->opt.window;
+    int n = 0;
+    for (int k = 0; k < w->nbox; k++) {
+        if (!r->xform) {
+            memcpy(box[n++], w->box[k], sizeof box[k]);
+            continue;
+        }
+        double ll[4];
+        memcpy(ll, w->box[k], sizeof ll);
+        ll[1] = ll[1] < -90 ? -90 : ll[1];
+        ll[3] = ll[3] > 90 ? 90 : ll[3];
+        ll[0] = ll[0] < -180 ? -180 : ll[0];
+        ll[2] = ll[2] > 180 ? 180 : ll[2];
+        if (ll[1] >= ll[3] || ll[0] >= ll[2])
+            continue;
+        if (st_crs_box_to_source(r->xform, ll, box[n++]) != ST_OK)
+            return 0;
+    }
+    return n;
+}
+
+static st_status window_sql(st_reader *r, gpkg_reader *g, const char *rtree,
+                            const double box[2][4], int nbox, st_buf *sql)
+{
+    const st_read_window *w = r->opt.window;
+    st_status rc = st_buf_printf(sql, "%s WHERE %s IN (", g->head, g->fid_col);
+    for (int k = 0; rc == ST_OK && k < nbox; k++)
+        rc = st_buf_printf(sql, "%sSELECT id FROM %s WHERE minx <= %.17g AND maxx >= %.17g "
+                           "AND miny <= %.17g AND maxy >= %.17g", k ? " UNION " : "", rtree,
+                           box[k][2], box[k][0], box[k][3], box[k][1]);
+    for (size_t i = 0; rc == ST_OK && i < w->nalways; i++)
+        rc = st_buf_printf(sql, "%s(%lld)", i ? ", " : nbox ? " UNION VALUES " : "VALUES ",
+                           (long long)(w->fid_min + (int64_t)w->always[i]));
+    if (rc == ST_OK)
+        rc = st_buf_printf(sql, ") ORDER BY %s", g->fid_col);
+    return rc;
+}
+
+/* Before the first row: read through the window when the layer allows
+** it (io.h), else go on with every row. */
+static st_status try_window(st_reader *r, gpkg_reader *g)
+{
+    const st_read_window *w = r->opt.window;
+    g->window_tried = 1;
+    if (!w || !g->has_fid || w->nalways > ST_READ_WINDOW_MAX_ALWAYS || w->nbox < 1 ||
+        w->nbox > 2)
+        return ST_OK;
+    st_buf rtree, sql;
+    st_buf_init(&rtree, 0);
+    st_buf_init(&sql, 0);
+    double box[2][4];
+    int nbox = 0;
+    st_status rc = ST_OK;
+    if (rtree_name(r, g, &rtree) && rtree_complete(r, rtree.data) &&
+        (nbox = source_boxes(r, box)) > 0)
+        rc = window_sql(r, g, rtree.data, box, nbox, &sql);
+    sqlite3_stmt *s = NULL;
+    if (rc == ST_OK && sql.len)
+        rc = prepare(r, sql.data, &s, "preparing the windowed query");
+    if (rc == ST_OK && s) {
+        sqlite3_finalize(g->rows);
+        g->rows = s;
+        g->windowed = 1;
+    }
+    st_buf_free(&rtree);
+    st_buf_free(&sql);
+    return rc;
+}
+
+/* A row read through the window: its position from its fid. */
+static st_status window_position(st_reader *r, gpkg_reader *g)
+{
+    const st_read_window *w = r->opt.window;
+    int64_t fid = sqlite3_column_int64(g->rows, 0);
+    if (sqlite3_column_type(g->rows, 0) != SQLITE_INTEGER || fid < w->fid_min ||
+        (uint64_t)(fid - w->fid_min) >= w->count)
+        return st_reader_fail(r, ST_ERR_FORMAT, -1, "fid %lld is outside the fids %lld.."
+                              "%lld the layer facts give: the layer changed since",
+                              (long long)fid, (long long)w->fid_min,
+                              (long long)(w->fid_min + (int64_t)w->count - 1));
+    r->next_index = (uint64_t)(fid - w->fid_min);
+    return ST_OK;
+}
+
+int st_gpkg_reader_windowed(const st_reader *r)
+{
+    const gpkg_reader *g = r->fmt == &st_gpkg_reader_format ? r->impl : NULL;
+    return g && g->windowed;
+}
+
 static st_status gpkg_next(st_reader *r, st_feature **out)
 {
     gpkg_reader *g = r->impl;
     *out = NULL;
     if (g->done)
         return ST_OK;   /* stepping again would restart the query */
+    if (!g->window_tried) {
+        st_status rc = try_window(r, g);
+        if (rc != ST_OK)
+            return rc;
+    }
     int step = sqlite3_step(g->rows);
     if (step == SQLITE_DONE) {
         g->done = 1;
@@ -622,6 +779,11 @@ static st_status gpkg_next(st_reader *r, st_feature **out)
     }
     if (step != SQLITE_ROW)
         return sql_fail(r, step, (long long)r->next_index, "reading a feature");
+    if (g->windowed) {
+        st_status rc = window_position(r, g);
+        if (rc != ST_OK)
+            return rc;
+    }
     st_feature *f = st_feature_new();
     if (!f)
         return ST_ERR_NOMEM;
@@ -649,6 +811,8 @@ static void gpkg_close(st_reader *r)
     st_geos_free(g->gx);
     st_free(g->table);
     st_free(g->geom_column);
+    st_free(g->head);
+    st_free(g->fid_col);
     st_free(g);
     r->impl = NULL;
 }

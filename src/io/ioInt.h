@@ -111,6 +111,9 @@ const char *st_path_ext(const char *path);
 /* Returns owned file stem ("dir/a.b.shp" -> "a.b"). */
 char *st_path_stem(const char *path);
 
+/* 1 when r is a GeoPackage reader reading through its window (gpkg_read.c). */
+int st_gpkg_reader_windowed(const st_reader *r);
+
 /* ---- GeoPackage binary geometry (io/gpkg_blob.c) ------------------------ */
 
 /* Largest geometry blob read or written (ST_ERR_LIMIT beyond). */

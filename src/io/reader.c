@@ -191,6 +191,7 @@ st_status st_reader_next(st_reader *r, st_feature **out)
     return ST_OK;
 }
 
+int st_reader_windowed(const st_reader *r) { return st_gpkg_reader_windowed(r); }
 const st_fields *st_reader_fields(const st_reader *r) { return &r->fields; }
 int st_reader_schema_fixed(const st_reader *r) { return r->schema_fixed; }
 const char *st_reader_format_name(const st_reader *r) { return r->fmt->name; }

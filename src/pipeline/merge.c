@@ -221,12 +221,34 @@ static st_status add_unmapped(void *ud, const char *field, const char *value, ui
     return st_unmapped_add(ud, field, value, n);
 }
 
-static st_status read_part(run_state *s, size_t k, const run_context *c, shared_set *sh)
+/* Every part learnt the same of the input layers (count, field types,
+** extent: st_run_layer_facts_digest), whether it read them whole or took
+** a facts file: else the parts were made from other inputs or facts. */
+static st_status same_layer_facts(run_state *s, const st_part *p, size_t k, char first[72])
+{
+    const char *v = st_part_info(p, "layer_facts");
+    v = v ? v : "";
+    if (k == 0) {
+        snprintf(first, 72, "%s", v);
+        return ST_OK;
+    }
+    if (strcmp(first, v) == 0)
+        return ST_OK;
+    return fail(s, "%s: its input layers differ from those of %s (count, field types or "
+                "extent; layer facts %s, not %s): the parts were made from other inputs or "
+                "other facts files", st_part_path(p), s->opt->inputs[0], *v ? v : "none",
+                *first ? first : "none");
+}
+
+static st_status read_part(run_state *s, size_t k, const run_context *c, shared_set *sh,
+                           char facts[72])
 {
     st_part *p = NULL;
     st_status rc = st_part_open(s->opt->inputs[k], s->diags, &p);
     if (rc == ST_OK)
         rc = same_context(s, p, c);
+    if (rc == ST_OK)
+        rc = same_layer_facts(s, p, k, facts);
     if (rc == ST_OK)
         rc = take_layers(s, p, k == 0);
     if (rc == ST_OK)
@@ -254,8 +276,9 @@ st_status st_stage_read_parts(run_state *s)
     rc = s->strings ? ST_OK : ST_ERR_NOMEM;
     if (rc == ST_OK && s->rules)
         rc = st_unmapped_new(&s->unmapped);
+    char facts[72] = "";
     for (size_t k = 0; rc == ST_OK && k < s->opt->ninputs; k++)
-        rc = read_part(s, k, &c, &sh);
+        rc = read_part(s, k, &c, &sh, facts);
     st_free(sh.bids);
     st_free(s->shared);   /* no use once read: features get sorted */
     s->shared = NULL;

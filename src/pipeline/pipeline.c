@@ -299,6 +299,8 @@ st_status st_run_state_finish(run_state *s, st_status rc, st_run_result **out)
     st_free(s->extents);
     st_free(s->shared);
     st_free(s->links);
+    st_facts_free(s->facts);
+    st_free(s->facts);
     st_findings_free(&s->findings);
     st_geos_free(s->gx);
     st_defaults_free(s->defaults);
@@ -332,6 +334,8 @@ st_status st_run_execute(const st_run_options *opt, st_diags *diags, st_run_resu
     st_status rc = st_run_state_init(&s, opt, diags);
     if (rc == ST_OK)
         rc = parse_window(&s, &window);
+    if (rc == ST_OK)
+        rc = st_run_facts_load(&s);
     if (rc == ST_OK)
         rc = st_run_guard_start(opt, diags, &s.budget);
     if (rc == ST_OK)

@@ -4,7 +4,9 @@
 #ifndef STOCKTAKE_PIPELINE_INT_H
 #define STOCKTAKE_PIPELINE_INT_H
 
+#include "stocktake/facts.h"
 #include "stocktake/footprint.h"
+#include "stocktake/io.h"
 #include "stocktake/neighbours.h"
 #include "stocktake/rules.h"
 
@@ -61,6 +63,8 @@ typedef struct run_state {
     /* the footprint checks running while the read stage reads
     ** (run_geometry.c); NULL outside those two stages */
     struct fp_overlap *fp;
+    /* a part's layer facts (--facts), or NULL */
+    struct st_facts *facts;
 } run_state;
 
 
@@ -135,6 +139,25 @@ st_status st_stage_write(run_state *s);
 st_status st_run_tile_cut(run_state *s, double *need_m);
 /* Write the part (part.h) to opt->output. */
 st_status st_stage_write_part(run_state *s);
+
+/* ---- a part's layer facts (run_facts.c) ----------------------------------- */
+
+struct st_facts_layer;
+struct st_read_window;
+/* Load opt->facts (when given) into s->facts and match it to the inputs. */
+st_status st_run_facts_load(run_state *s);
+/* Input l, opened as r (borrowed), is the file the facts describe, unchanged. */
+st_status st_run_facts_check_input(run_state *s, size_t l, const st_reader *r);
+/* An ST_ERR_FORMAT diagnostic: input l does not match the facts because ... */
+st_status st_run_facts_mismatch(run_state *s, size_t l, const char *fmt, ...) ST_PRINTF(3, 4);
+/* 1 when layer facts 'given' (or NULL) let the layer be read through the
+** window (then *w is filled, borrowing from 'given'), else 0. */
+int st_run_facts_window(const run_state *s, const struct st_facts_layer *given,
+                        struct st_read_window *w);
+/* The SHA-256 (hex) of what the read learnt of every layer (count, field
+** types, extent): a part records it and merge requires every part's to
+** agree, whether a part read its layers whole or took a facts file. */
+void st_run_layer_facts_digest(const run_state *s, char hex[65]);
 
 /* merge: read the parts (opt->inputs) back as the run's features,
 ** findings, layers and unmapped counts, checking that they belong

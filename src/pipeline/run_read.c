@@ -5,8 +5,11 @@
 ** each packed into one block, trimmed to size) and counted against the
 ** memory budget.
 ** Whatever needs the whole layer is gathered from every feature as it
-** passes (field types, the robust extent), so a tile (run --tile), which
-** keeps only the features within reach of its window, learns the same.
+** passes (field types, the robust extent; facts.h), so a tile (run
+** --tile), which keeps only the features within reach of its window,
+** learns the same. A tile given the layer facts (--facts) takes them from
+** there instead and reads a GeoPackage through its R-tree (run_facts.c);
+** a layer it still streams whole must then say what the facts say.
 ** Each full chunk of kept features (and each layer's last) goes to the
 ** footprint checks as soon as it is read (run_geometry.c): they run on the
 ** other workers while this thread reads on.
@@ -14,6 +17,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "stocktake/facts.h"
 #include "stocktake/footprint.h"
 #include "stocktake/io.h"
 #include "guardInt.h"
@@ -49,77 +53,15 @@ static char *unique_layer_name(run_state *s, size_t upto, const char *base)
     }
 }
 
-/* Per layer while reading: what the whole layer says, whether or not
-** each feature is kept (a tile keeps only its window and halo). */
-typedef struct layer_scan {
-    uint8_t *text;               /* per field: a value that is not a number */
-    uint32_t ntext;
-    double *centres;             /* every feature's centre, for the extent */
-    size_t ncentres, capcentres;
-} layer_scan;
-
-static void layer_scan_free(layer_scan *ls)
+/* A numeric field in which the layer holds a value that is not a number
+** is written as text (facts.c note_text_values says why). */
+static void demote_numeric_fields(const st_facts_layer *lf, st_fields *fl)
 {
-    st_free(ls->text);
-    st_free(ls->centres);
-}
-
-/* GeoJSON types a field by its first value: a later "PB+2" in a field that
-** began with 2 makes it text, so that the inventory does not declare a
-** number column for it (GDAL reads such a value back as 0). Noted for
-** every feature as it is read, kept or not. */
-static st_status note_text_values(layer_scan *ls, const st_fields *fl, const st_feature *f)
-{
-    for (uint32_t k = 0; k < f->nvalues && k < fl->count; k++) {
-        const st_field *fd = &fl->items[k];
-        const char *v = f->values[k];
-        if ((fd->type != ST_FIELD_INTEGER && fd->type != ST_FIELD_REAL) || !v || !*v)
-            continue;
-        char *end;
-        (void)strtod(v, &end);
-        if (!*end)
-            continue;
-        if (k >= ls->ntext) {
-            uint8_t *t = st_realloc(ls->text, fl->count);
-            if (!t)
-                return ST_ERR_NOMEM;
-            memset(t + ls->ntext, 0, fl->count - ls->ntext);
-            ls->text = t;
-            ls->ntext = fl->count;
-        }
-        ls->text[k] = 1;
-    }
-    return ST_OK;
-}
-
-static void demote_numeric_fields(const layer_scan *ls, st_fields *fl)
-{
-    for (uint32_t k = 0; k < ls->ntext && k < fl->count; k++)
-        if (ls->text[k]) {
+    for (uint32_t k = 0; k < lf->nfields && k < fl->count; k++)
+        if (lf->text[k]) {
             fl->items[k].type = ST_FIELD_TEXT;
             fl->items[k].width = 0;
         }
-}
-
-/* The centre of every feature of the layer, for its robust extent (the
-** swapped-axes check): 16 bytes a feature, freed after the layer. */
-static st_status note_centre(layer_scan *ls, const st_feature *f)
-{
-    double c[2];
-    if (!st_footprint_center(&f->geom, c))
-        return ST_OK;
-    if (ls->ncentres == ls->capcentres) {
-        size_t cap = ls->capcentres ? 2 * ls->capcentres : 4096;
-        double *a = st_realloc(ls->centres, 2 * cap * sizeof *a);
-        if (!a)
-            return ST_ERR_NOMEM;
-        ls->centres = a;
-        ls->capcentres = cap;
-    }
-    ls->centres[2 * ls->ncentres] = c[0];
-    ls->centres[2 * ls->ncentres + 1] = c[1];
-    ls->ncentres++;
-    return ST_OK;
 }
 
 static int boxes_meet(const double a[4], const double b[4])
@@ -142,14 +84,28 @@ static int in_reach(const run_state *s, const st_feature *f)
     return boxes_meet(b, s->read_box) || boxes_meet(sw, s->read_box);
 }
 
-static st_status take_feature(run_state *s, st_reader *r, layer_scan *ls, size_t l,
-                              st_feature *f)
+/* One layer being read: what the whole layer says is gathered from every
+** feature as it passes (the scan), unless the layer is read through its
+** R-tree and its facts come from the facts file. */
+typedef struct layer_read {
+    size_t l;
+    uint64_t offset;             /* features of the layers before */
+    st_reader *r;
+    const st_facts_layer *given; /* from --facts, or NULL */
+    st_facts_scan scan;
+    st_facts_layer seen;
+    uint64_t rows;               /* features the reader gave */
+} layer_read;
+
+static st_status take_feature(run_state *s, layer_read *lr, st_feature *f)
 {
-    f->layer = (uint32_t)l;
-    f->bid = ++s->nread;
-    st_status rc = note_text_values(ls, st_reader_fields(r), f);
-    if (rc == ST_OK)
-        rc = note_centre(ls, f);
+    st_reader *r = lr->r;
+    f->layer = (uint32_t)lr->l;
+    f->bid = lr->offset + f->index + 1;
+    st_status rc = ST_OK;
+    if (!st_reader_windowed(r))
+        rc = st_facts_scan_feature(&lr->scan, &lr->seen, st_reader_fields(r), f,
+                                   !strcmp(st_reader_format_name(r), "gpkg"));
     if (rc != ST_OK || !in_reach(s, f)) {
         st_feature_free(f);
         return rc;
@@ -176,50 +132,97 @@ static st_status take_feature(run_state *s, st_reader *r, layer_scan *ls, size_t
     return st_run_footprints_feed(s, 0);   /* a full chunk: checked now */
 }
 
-static st_status read_layer(run_state *s, size_t l)
+static st_status read_features(run_state *s, layer_read *lr)
 {
-    st_read_options ro = ST_READ_OPTIONS_DEFAULT;
-    ro.crs_override = s->opt->crs_override;
-    st_reader *r = NULL;
-    st_status rc = st_reader_open(s->opt->inputs[l], &ro, s->diags, &r);
-    if (rc != ST_OK)
-        return rc;
-    st_run_layer *L = &s->res->layers[l];
-    layer_scan ls;
-    memset(&ls, 0, sizeof ls);
+    st_status rc = ST_OK;
     for (;;) {
         st_feature *f = NULL;
-        rc = st_reader_next(r, &f);
+        rc = st_reader_next(lr->r, &f);
         if (rc != ST_OK || !f)
             break;
-        if ((rc = take_feature(s, r, &ls, l, f)) != ST_OK)
+        lr->rows++;
+        if ((rc = take_feature(s, lr, f)) != ST_OK)
             break;
-        L->read++;
-        if ((L->read & 0x3FFF) == 0) {
+        if ((lr->rows & 0x3FFF) == 0) {
             if ((rc = st_run_check_stop(s)) != ST_OK)
                 break;
             long long done, total;
-            st_reader_progress(r, &done, &total);
+            st_reader_progress(lr->r, &done, &total);
             st_run_progress(s, "read", done, total);
         }
     }
-    if (rc == ST_OK) {
-        L->name = unique_layer_name(s, l, st_reader_layer_name(r));
-        L->path = st_strdup(st_reader_path(r));
-        L->format = st_strdup(st_reader_format_name(r));
-        L->crs = st_strdup(st_reader_crs(r) ? st_reader_crs(r) : "");
-        rc = L->name && L->path && L->format && L->crs ? ST_OK : ST_ERR_NOMEM;
+    return rc;
+}
+
+static st_status describe_layer(run_state *s, size_t l, st_reader *r)
+{
+    st_run_layer *L = &s->res->layers[l];
+    L->name = unique_layer_name(s, l, st_reader_layer_name(r));
+    L->path = st_strdup(st_reader_path(r));
+    L->format = st_strdup(st_reader_format_name(r));
+    L->crs = st_strdup(st_reader_crs(r) ? st_reader_crs(r) : "");
+    return L->name && L->path && L->format && L->crs ? ST_OK : ST_ERR_NOMEM;
+}
+
+/* The layer's facts: from the facts file when read through the window,
+** else from the scan (which must then agree with the file, if any). */
+static st_status settle_facts(run_state *s, layer_read *lr, const st_facts_layer **out)
+{
+    *out = lr->given;
+    if (st_reader_windowed(lr->r)) {
+        st_loc loc = ST_LOC_FILE(st_reader_path(lr->r));
+        st_diags_add(s->diags, ST_SEV_NOTE, ST_OK, &loc, "read %llu of %llu features through "
+                     "the R-tree (%s and halo)",
+                     (unsigned long long)lr->rows,
+                     (unsigned long long)lr->given->count, s->window->label);
+        return ST_OK;
     }
+    st_status rc = st_facts_scan_end(&lr->scan, &lr->seen, st_reader_fields(lr->r));
+    if (rc == ST_OK && lr->given && !st_facts_same_content(&lr->seen, lr->given))
+        rc = st_run_facts_mismatch(s, lr->l, "its features are not what the facts say "
+                                   "(count, field values or extent)");
+    *out = &lr->seen;
+    return rc;
+}
+
+static st_status read_layer(run_state *s, size_t l)
+{
+    layer_read lr;
+    memset(&lr, 0, sizeof lr);
+    lr.l = l;
+    lr.offset = s->nread;
+    lr.given = s->facts ? &s->facts->layers[l] : NULL;
+    st_read_window win;
+    st_read_options ro = ST_READ_OPTIONS_DEFAULT;
+    ro.crs_override = s->opt->crs_override;
+    if (st_run_facts_window(s, lr.given, &win))
+        ro.window = &win;
+    st_status rc = st_reader_open(s->opt->inputs[l], &ro, s->diags, &lr.r);
+    if (rc != ST_OK)
+        return rc;
+    st_facts_scan_begin(&lr.scan, &lr.seen);
+    if (lr.given)
+        rc = st_run_facts_check_input(s, l, lr.r);
+    if (rc == ST_OK)
+        rc = read_features(s, &lr);
+    if (rc == ST_OK)
+        rc = describe_layer(s, l, lr.r);
     if (rc == ST_OK)
         rc = st_run_footprints_feed(s, 1);   /* the layer's last chunk */
+    const st_facts_layer *facts = NULL;
     if (rc == ST_OK)
-        rc = st_fields_copy(&s->fields[l], st_reader_fields(r));
+        rc = settle_facts(s, &lr, &facts);
     if (rc == ST_OK)
-        demote_numeric_fields(&ls, &s->fields[l]);
-    if (rc == ST_OK)
-        rc = st_footprint_extent_compute(ls.centres, ls.ncentres, &s->extents[l]);
-    layer_scan_free(&ls);
-    st_reader_close(r);
+        rc = st_fields_copy(&s->fields[l], st_reader_fields(lr.r));
+    if (rc == ST_OK) {
+        demote_numeric_fields(facts, &s->fields[l]);
+        s->extents[l] = facts->extent;
+        s->res->layers[l].read = facts->count;
+        s->nread = lr.offset + facts->count;
+    }
+    st_facts_scan_free(&lr.scan);
+    st_facts_layer_free(&lr.seen);
+    st_reader_close(lr.r);
     return rc;
 }
 

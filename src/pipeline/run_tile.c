@@ -23,6 +23,7 @@
 
 #include "stocktake/part.h"
 #include "stocktake/report.h"
+#include "stocktake/sha256.h"
 #include "pipelineInt.h"
 
 /* ---- ownership and the halo check -------------------------------------- */
@@ -246,14 +247,36 @@ st_status st_run_context_make(run_state *s, run_context *c)
     return rc;
 }
 
+void st_run_layer_facts_digest(const run_state *s, char hex[65])
+{
+    st_buf b;
+    st_buf_init(&b, 0);
+    st_status rc = ST_OK;
+    for (size_t l = 0; rc == ST_OK && l < s->res->nlayers; l++) {
+        const st_footprint_extent *e = &s->extents[l];
+        rc = st_buf_printf(&b, "layer %zu read %llu extent %d %.17g %.17g %.17g %.17g fields",
+                           l, (unsigned long long)s->res->layers[l].read, e->valid,
+                           e->valid ? e->xmin : 0, e->valid ? e->ymin : 0,
+                           e->valid ? e->xmax : 0, e->valid ? e->ymax : 0);
+        for (uint32_t k = 0; rc == ST_OK && k < s->fields[l].count; k++)
+            rc = st_buf_printf(&b, " %d", (int)s->fields[l].items[k].type);
+        if (rc == ST_OK)
+            rc = st_buf_puts(&b, "\n");
+    }
+    /* no memory: a digest no part can match, so merge refuses */
+    st_sha256_hex(rc == ST_OK && b.data ? b.data : "?", rc == ST_OK ? b.len : 1, hex);
+    st_buf_free(&b);
+}
+
 /* ---- writing the part ---------------------------------------------------- */
 
 static st_status write_info(run_state *s, st_part_writer *w, const run_context *c)
 {
-    char halo[32], when[32];
+    char halo[32], when[32], facts[65];
+    st_run_layer_facts_digest(s, facts);
     snprintf(halo, sizeof halo, "%.1f", s->halo_m);
     st_now_iso8601(when);
-    const char *kv[2 * (RUN_CONTEXT_MAX + 6)];
+    const char *kv[2 * (RUN_CONTEXT_MAX + 7)];
     size_t n = 0;
     kv[2 * n] = "tool", kv[2 * n++ + 1] = "stocktake " ST_VERSION;
     kv[2 * n] = "command", kv[2 * n++ + 1] = s->opt->command_line ? s->opt->command_line : "";
@@ -261,6 +284,7 @@ static st_status write_info(run_state *s, st_part_writer *w, const run_context *
     kv[2 * n] = "halo_m", kv[2 * n++ + 1] = halo;
     kv[2 * n] = "started", kv[2 * n++ + 1] = s->started;
     kv[2 * n] = "finished", kv[2 * n++ + 1] = when;
+    kv[2 * n] = "layer_facts", kv[2 * n++ + 1] = facts;
     for (size_t i = 0; i < c->n; i++)
         kv[2 * n] = c->keys[i], kv[2 * n++ + 1] = c->values[i];
     return st_part_write_info(w, kv, n);

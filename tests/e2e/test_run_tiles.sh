@@ -101,15 +101,25 @@ same "$TMP/s/single.gpkg" "$TMP/s/merged.gpkg" || fail "the merge of the -S run 
 # (Slurm itself is not in the tests).
 SB=$ROOT/scripts/slurm-tiles.sbatch
 mkdir "$TMP/sp"
-"$STOCKTAKE" tiles -z $Z "$OSM" "$CAD" >"$TMP/sp/tiles.txt" || fail "stocktake tiles"
+"$STOCKTAKE" tiles -z $Z --facts "$TMP/sp/facts.txt" "$OSM" "$CAD" >"$TMP/sp/tiles.txt" ||
+    fail "stocktake tiles"
+# a stand-in binary notes each call: the tasks pass the facts on
+cat >"$TMP/noting" <<EOF
+#!/bin/sh
+echo "\$*" >>"$TMP/calls"
+exec "$STOCKTAKE" "\$@"
+EOF
+chmod +x "$TMP/noting"
 task=1
 while [ $(( (task - 1) * 2 )) -lt "$ntiles" ]; do
-    SLURM_ARRAY_TASK_ID=$task TILES_PER_TASK=2 STOCKTAKE=$STOCKTAKE \
+    SLURM_ARRAY_TASK_ID=$task TILES_PER_TASK=2 STOCKTAKE=$TMP/noting \
         sh "$SB" run "$TMP/sp" "$@" "$OSM" "$CAD" >"$TMP/stdout" 2>"$TMP/stderr" ||
         { cat "$TMP/stderr" >&2; fail "slurm task $task failed"; }
     task=$((task + 1))
 done
 grep -q "tile .* done: $TMP/sp/" "$TMP/stdout" || fail "a slurm task says nothing of its tiles"
+[ "$(grep -c -- "--facts $TMP/sp/facts.txt" "$TMP/calls")" -eq "$ntiles" ] ||
+    fail "the slurm tasks did not all pass --facts: $(cat "$TMP/calls")"
 expect_rc 2 env SLURM_ARRAY_TASK_ID=$task TILES_PER_TASK=2 sh "$SB" run "$TMP/sp" "$OSM"
 expect_stderr "no line"
 STOCKTAKE=$STOCKTAKE sh "$SB" merge "$TMP/sp" -q -o "$TMP/sp/merged.gpkg" "$@" \
@@ -148,8 +158,9 @@ expect_stderr "--parts $TMP/parts --resume"
 # running beside it could have ended first), and no temporary part is left
 n=$(find "$TMP/parts" -name '*.gpkg' | wc -l)
 [ "$n" -le 3 ] || fail "$n parts written after a tile failed: the job went on"
-[ "$(find "$TMP/parts" -type f ! -name '*.gpkg' ! -name joblog ! -name tiles.txt | wc -l)" -eq 0 ] ||
-    { ls -A "$TMP/parts" >&2; fail "the stopped tiles left files"; }
+[ "$(find "$TMP/parts" -type f ! -name '*.gpkg' ! -name joblog ! -name tiles.txt \
+    ! -name facts.txt | wc -l)" -eq 0 ] || { ls -A "$TMP/parts" >&2; fail "the stopped tiles left files"; }
+grep -q '^stocktake-facts 1$' "$TMP/parts/facts.txt" || fail "no layer facts in the parts folder"
 STOCKTAKE=$STOCKTAKE sh "$RT" -z $Z -P 3 -o "$TMP/f/out.gpkg" --parts "$TMP/parts" --resume \
     "$OSM" "$CAD" -- "$@" >"$TMP/stdout" 2>"$TMP/stderr"
 rc=$?
