@@ -23,6 +23,7 @@
 #include "stocktake/core.h"
 #include "stocktake/explain.h"
 #include "stocktake/pipeline.h"
+#include "scratch.h"
 
 typedef struct fixture {
     char dir[64];
@@ -80,9 +81,7 @@ static int group_setup(void **state)
 static int group_teardown(void **state)
 {
     fixture *fx = *state;
-    char cmd[128];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", fx->dir);
-    if (system(cmd) != 0)
+    if (scratch_remove(fx->dir) != 0)
         return -1;
     free(fx);
     return 0;

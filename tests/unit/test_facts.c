@@ -22,6 +22,7 @@
 
 #include "stocktake/facts.h"
 #include "stocktake/sha256.h"
+#include "scratch.h"
 
 typedef struct fixture {
     char dir[64];
@@ -42,11 +43,9 @@ static int setup(void **state)
 static int teardown(void **state)
 {
     fixture *fx = *state;
-    char cmd[128];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", fx->dir);
-    int rc = system(cmd);
+    int rc = scratch_remove(fx->dir);
     free(fx);
-    return rc == 0 ? 0 : -1;
+    return rc;
 }
 
 static st_feature *square(uint64_t index, const char *fid, double x, double y)

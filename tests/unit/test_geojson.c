@@ -21,6 +21,7 @@
 #include "stocktake/core.h"
 #include "stocktake/feature.h"
 #include "stocktake/io.h"
+#include "scratch.h"
 
 /* ---- helpers ------------------------------------------------------------- */
 
@@ -972,9 +973,7 @@ static int setup(void **state)
 static int teardown(void **state)
 {
     (void)state;
-    char cmd[400];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", tmpdir);
-    return system(cmd) == 0 ? 0 : -1;
+    return scratch_remove(tmpdir);
 }
 
 int main(void)

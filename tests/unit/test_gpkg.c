@@ -33,6 +33,7 @@
 #include "stocktake/geomx.h"
 #include "stocktake/io.h"
 #include "io/ioInt.h"
+#include "scratch.h"
 
 #define PY "/usr/bin/python3"
 #define VALIDATE "/usr/lib/python3/dist-packages/osgeo_utils/samples/validate_gpkg.py"
@@ -933,11 +934,9 @@ static int group_setup(void **state)
 static int group_teardown(void **state)
 {
     fixture *fx = *state;
-    char cmd[128];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", fx->dir);
-    int rc = system(cmd);
+    int rc = scratch_remove(fx->dir);
     free(fx);
-    return rc == 0 ? 0 : -1;
+    return rc;
 }
 
 /* ---- writer against GDAL --------------------------------------------------- */

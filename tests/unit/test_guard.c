@@ -18,6 +18,7 @@
 #include "pipeline/guardInt.h"
 #include "stocktake/core.h"
 #include "stocktake/feature.h"
+#include "scratch.h"
 
 static char tmpdir[256];
 
@@ -191,9 +192,7 @@ static int setup(void **state)
 static int teardown(void **state)
 {
     (void)state;
-    char cmd[600];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", tmpdir);
-    return system(cmd) == 0 ? 0 : -1;
+    return scratch_remove(tmpdir);
 }
 
 int main(void)

@@ -35,6 +35,7 @@
 
 #include "stocktake/io.h"
 #include "stocktake/part.h"
+#include "scratch.h"
 
 #define PY "/usr/bin/python3"
 #define VALIDATE "/usr/lib/python3/dist-packages/osgeo_utils/samples/validate_gpkg.py"
@@ -659,11 +660,9 @@ static int group_setup(void **state)
 static int group_teardown(void **state)
 {
     fixture *fx = *state;
-    char cmd[128];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", fx->dir);
-    int rc = system(cmd);
+    int rc = scratch_remove(fx->dir);
     free(fx);
-    return rc == 0 ? 0 : -1;
+    return rc;
 }
 
 static int count_entries(const char *dir)

@@ -22,6 +22,7 @@
 #include <cmocka.h>
 
 #include "stocktake/place.h"
+#include "scratch.h"
 
 static char tmpdir[256];
 
@@ -446,9 +447,7 @@ static int setup(void **state)
 static int teardown(void **state)
 {
     (void)state;
-    char cmd[300];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", tmpdir);
-    return system(cmd) == 0 ? 0 : -1;
+    return scratch_remove(tmpdir);
 }
 
 int main(void)

@@ -32,6 +32,7 @@
 #include "stocktake/feature.h"
 #include "stocktake/io.h"
 #include "io/ioInt.h"
+#include "scratch.h"
 
 #define NROWS 2500
 #define NCOLS 5
@@ -239,11 +240,9 @@ static int teardown(void **state)
 {
     fixture *fx = *state;
     rows_free(&fx->r);
-    char cmd[128];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", fx->dir);
-    int rc = system(cmd);
+    int rc = scratch_remove(fx->dir);
     free(fx);
-    return rc == 0 ? 0 : -1;
+    return rc;
 }
 
 static unsigned char *slurp(const char *path, size_t *n)
