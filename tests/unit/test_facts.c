@@ -32,9 +32,13 @@ typedef struct fixture {
 static int setup(void **state)
 {
     fixture *fx = calloc(1, sizeof *fx);
-    snprintf(fx->dir, sizeof fx->dir, "/tmp/st_facts_XXXXXX");
-    if (!fx || !mkdtemp(fx->dir))
+    if (!fx)
         return -1;
+    snprintf(fx->dir, sizeof fx->dir, "/tmp/st_facts_XXXXXX");
+    if (!mkdtemp(fx->dir)) {
+        free(fx);
+        return -1;
+    }
     snprintf(fx->path, sizeof fx->path, "%s/facts.txt", fx->dir);
     *state = fx;
     return 0;
